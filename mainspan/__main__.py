@@ -1,0 +1,6 @@
+"""``python -m mainspan`` runs the command line."""
+
+from .cli import main
+
+if __name__ == "__main__":  # pragma: no cover - exercised through subprocess tests
+    raise SystemExit(main())

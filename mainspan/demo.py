@@ -1,0 +1,136 @@
+"""``mainspan demo OUTDIR``: write the bundled demo scenarios and plan them.
+
+Two invented scenarios ship with the package (``mainspan.sample_data``):
+the Kestrel Flats irrigation scheme (pressure mains from a pump station to
+about 150 field hydrants) and the Harrow Brook drainage catchment (gravity
+mains from 60 inlets to one outlet), both on the same generated terrain and
+land-cost rasters.
+"""
+
+from __future__ import annotations
+
+import os
+import shutil
+import sys
+from importlib import resources
+
+import numpy as np
+
+from .errors import DataFileError, OverwriteError
+
+__all__ = ["run_demo", "demo_files", "DEMO_FILES"]
+
+DEMO_FILES = ("kestrel_outlets.gpkg", "harrow_inlets.gpkg", "terrain.tif", "landcost.tif",
+              "kestrel.toml", "harrow.toml")
+
+
+def demo_files(dest):
+    """Copy the demo inputs into *dest*; return their paths by name."""
+    os.makedirs(dest, exist_ok=True)
+    src = resources.files("mainspan.sample_data")
+    out = {}
+    for name in DEMO_FILES:
+        item = src / name
+        if not item.is_file():
+            raise DataFileError(f"demo file {name!r} is missing from the installed package; "
+                                "reinstall mainspan")
+        target = os.path.join(dest, name)
+        with resources.as_file(item) as p:
+            shutil.copyfile(p, target)
+        out[name] = target
+    return out
+
+
+def run_demo(outdir, *, overwrite=False, quiet=False, write_extras=True):
+    """Write the demo inputs to ``OUTDIR/inputs`` and plan both scenarios into OUTDIR."""
+    from .cli import CAUTION, _progress
+    from .layout import plan_layout
+    from .project import load_project, plan_kwargs
+    from .sites import read_sites
+
+    outdir = os.fspath(outdir)
+    outputs = ["kestrel_layout.gpkg", "kestrel_report.html", "kestrel_layout.dxf",
+               "kestrel_layout.xml", "kestrel_long_section.png", "harrow_layout.gpkg",
+               "harrow_report.html", "harrow_long_section.png"]
+    if os.path.isdir(outdir) and not overwrite:
+        clash = [o for o in outputs if os.path.exists(os.path.join(outdir, o))]
+        if clash:
+            raise OverwriteError(f"demo folder {outdir!r} already holds {', '.join(clash[:3])}"
+                                 f"{' …' if len(clash) > 3 else ''}; pass --overwrite or choose "
+                                 "another folder")
+    inputs = os.path.join(outdir, "inputs")
+    files = demo_files(inputs)
+    say = _progress(quiet)
+
+    def plan(project, scenario=None):
+        proj = load_project(project)
+        path, read_kw, plan_kw, _ = plan_kwargs(proj.settings_for(scenario))
+        return plan_layout(read_sites(path, **read_kw), progress=say, **plan_kw)
+
+    print("Kestrel Flats irrigation scheme (pressure mains, invented demo)")
+    ground = plan(files["kestrel.toml"])
+    plain = plan(files["kestrel.toml"], "plain_length")
+    k_gpkg = os.path.join(outdir, "kestrel_layout.gpkg")
+    ground.write_gpkg(k_gpkg, overwrite=overwrite)
+    print(ground.summary())
+    print(_ground_vs_length(ground, plain))
+    from .cli import _print_design
+    _print_design(ground)
+
+    print()
+    print("Harrow Brook drainage catchment (gravity mains, invented demo)")
+    drain = plan(files["harrow.toml"])
+    h_gpkg = os.path.join(outdir, "harrow_layout.gpkg")
+    drain.write_gpkg(h_gpkg, overwrite=overwrite)
+    print(drain.summary())
+    _print_design(drain)
+
+    written = [k_gpkg, h_gpkg]
+    if write_extras:
+        from .report.html import write_report
+        from .report.plots import save_long_section
+        from .writers.dxf import write_dxf
+        from .writers.landxml import write_landxml
+        for lay, stem in ((ground, "kestrel"), (drain, "harrow")):
+            p = os.path.join(outdir, f"{stem}_report.html")
+            write_report(lay, p, overwrite=overwrite)
+            written.append(p)
+            p = os.path.join(outdir, f"{stem}_long_section.png")
+            save_long_section(lay, p, overwrite=overwrite)
+            written.append(p)
+        p = os.path.join(outdir, "kestrel_layout.dxf")
+        write_dxf(ground, p, overwrite=overwrite)
+        written.append(p)
+        p = os.path.join(outdir, "kestrel_layout.xml")
+        write_landxml(ground, p, overwrite=overwrite)
+        written.append(p)
+    print()
+    print("written:")
+    for p in written:
+        print(f"  {p}")
+    print(f"inputs (rerun with 'mainspan plan {files['kestrel.toml']} --out NEW.gpkg'):")
+    print(f"  {inputs}")
+    print(CAUTION)
+    sys.stdout.flush()
+    return 0
+
+
+def _ground_vs_length(ground, plain) -> str:
+    """How pricing the ground changed the layout against plain length."""
+    g = set(np.asarray(ground.links["candidate_index"]).tolist())
+    p = set(np.asarray(plain.links["candidate_index"]).tolist())
+    shared = len(g & p)
+    jacc = shared / max(1, len(g | p))
+    total = np.asarray(ground.costs.total, float)
+    plain_under_ground = float(total[sorted(p)].sum())
+    ground_cost = float(total[sorted(g)].sum())
+    saving = plain_under_ground - ground_cost
+    return "\n".join([
+        "ground vs plain length:",
+        f"  links shared    {shared} of {len(g)} (Jaccard {jacc:.2f})",
+        f"  length          {ground.total('length_m'):,.1f} m vs {plain.total('length_m'):,.1f} m "
+        "for the shortest tree",
+        f"  ground cost     {ground_cost:,.0f} vs {plain_under_ground:,.0f} for the shortest tree "
+        f"priced on the same ground (saves {saving:,.0f}, "
+        f"{100 * saving / max(plain_under_ground, 1e-9):.1f} %)",
+    ])

@@ -1,0 +1,615 @@
+"""The result (:class:`Layout`) and the pipeline that makes it (:func:`plan_layout`).
+
+``plan_layout`` calls each stage once, in order, on plain arrays::
+
+    sites → candidates → link costs → Prim tree (+ certificate) → design → Layout
+
+A :class:`Layout` is table-shaped so that it can be written to a GeoPackage
+and read back whole: writers and the report take a Layout and nothing else.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import os
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+import pyproj
+
+from ._version import __version__
+from .errors import CertificateError, InputError
+
+__all__ = ["Layout", "plan_layout", "read_layout", "file_sha256"]
+
+
+@dataclass
+class Profiles:
+    """Ground profiles along each link, CSR: link i spans ``offsets[i]:offsets[i+1]``."""
+
+    offsets: np.ndarray
+    station_m: np.ndarray
+    ground_m: np.ndarray
+
+    def of(self, i):
+        a, b = int(self.offsets[i]), int(self.offsets[i + 1])
+        return self.station_m[a:b], self.ground_m[a:b]
+
+
+@dataclass
+class Layout:
+    """A planned network of mains, ready for writers and the report.
+
+    Attributes
+    ----------
+    crs : pyproj.CRS
+        Working CRS (metres) of every coordinate.
+    nodes : dict of str -> ndarray
+        Columns of the ``nodes`` layer, one row per site, in site order.
+    node_xy : ndarray (n, 2)
+    links : dict of str -> ndarray
+        Columns of the ``links`` layer, one row per tree link, in grow order.
+    link_ends : ndarray int64 (L, 2)
+        Row indices into ``nodes`` of each link's ``from_node`` (nearer the
+        root) and ``to_node``.
+    tables : dict of str -> dict of str -> ndarray
+        Further attribute tables (``quantities``, ``checks``).
+    run_info : dict of str -> str
+        Run metadata: version, inputs with SHA-256, CRS, parameters, totals,
+        certificate.
+    profiles : Profiles or None
+        Ground profile along each link (stations from ``from_node``).
+    """
+
+    crs: pyproj.CRS
+    nodes: dict
+    node_xy: np.ndarray
+    links: dict
+    link_ends: np.ndarray
+    tables: dict = field(default_factory=dict)
+    run_info: dict = field(default_factory=dict)
+    profiles: Profiles | None = None
+    # pipeline internals; None when a layout is read back from a file
+    sites: object = None
+    candidates: object = None
+    costs: object = None
+    tree: object = None
+    certificate: object = None
+    design: object = None
+
+    # ------------------------------------------------------------------ basics
+    @property
+    def n_nodes(self) -> int:
+        return len(self.node_xy)
+
+    @property
+    def n_links(self) -> int:
+        return len(self.link_ends)
+
+    @property
+    def system(self) -> str | None:
+        s = self.run_info.get("system", "")
+        return s or None
+
+    @property
+    def has_z(self) -> bool:
+        z = self.nodes.get("elevation_m")
+        return z is not None and bool(np.isfinite(np.asarray(z, float)).any())
+
+    def node_index(self, node_id) -> int:
+        ids = np.asarray(self.nodes["node_id"]).astype(str)
+        hit = np.flatnonzero(ids == str(node_id))
+        if not hit.size:
+            raise InputError(f"node id {node_id!r} is not in this layout; "
+                             f"ids look like {', '.join(ids[:5])}")
+        return int(hit[0])
+
+    def link_coordinates(self, z="ground"):
+        """(L, 2, 3) link end coordinates; z from ``ground`` or the pipe ``invert``."""
+        xy = self.node_xy[self.link_ends]              # (L, 2, 2)
+        out = np.zeros((self.n_links, 2, 3))
+        out[:, :, :2] = xy
+        if z == "invert" and "invert_from_m" in self.links:
+            out[:, 0, 2] = self.links["invert_from_m"]
+            out[:, 1, 2] = self.links["invert_to_m"]
+        elif "z_from_m" in self.links:
+            out[:, 0, 2] = self.links["z_from_m"]
+            out[:, 1, 2] = self.links["z_to_m"]
+        else:
+            out[:, :, 2] = np.nan
+        return out
+
+    def total(self, column="length_m") -> float:
+        return float(np.nansum(np.asarray(self.links[column], float))) if self.n_links else 0.0
+
+    def path_to_root(self, node) -> np.ndarray:
+        """Node indices from *node* (index or id) up to its root, inclusive."""
+        i = self.node_index(node) if not isinstance(node, (int, np.integer)) else int(node)
+        parent = np.full(self.n_nodes, -1, dtype=np.int64)
+        parent[self.link_ends[:, 1]] = self.link_ends[:, 0]
+        out = [i]
+        while parent[out[-1]] >= 0:
+            out.append(int(parent[out[-1]]))
+        return np.asarray(out, dtype=np.int64)
+
+    # ------------------------------------------------------------------ output
+    def to_frames(self, *, suffix=""):
+        """The layers as (Geo)DataFrames keyed by layer name."""
+        import geopandas as gpd
+        import pandas as pd
+        import shapely
+
+        has_z = self.has_z
+        c = self.link_coordinates()
+        if has_z:
+            zz = np.nan_to_num(c[:, :, 2], nan=0.0)
+            lines = shapely.linestrings(np.dstack([c[:, :, 0], c[:, :, 1], zz]))
+            pts = shapely.points(self.node_xy[:, 0], self.node_xy[:, 1],
+                                 np.nan_to_num(np.asarray(self.nodes["elevation_m"], float)))
+        else:
+            lines = shapely.linestrings(c[:, :, :2]) if self.n_links else np.array([], object)
+            pts = shapely.points(self.node_xy)
+        links = gpd.GeoDataFrame(pd.DataFrame({k: _col(v) for k, v in self.links.items()}),
+                                 geometry=np.asarray(lines, dtype=object), crs=self.crs)
+        nodes = gpd.GeoDataFrame(pd.DataFrame({k: _col(v) for k, v in self.nodes.items()}),
+                                 geometry=np.asarray(pts, dtype=object), crs=self.crs)
+        out = {f"links{suffix}": links, f"nodes{suffix}": nodes}
+        info = pd.DataFrame({"key": list(self.run_info.keys()),
+                             "value": [str(v) for v in self.run_info.values()]})
+        out[f"run_info{suffix}"] = info
+        for name, table in self.tables.items():
+            out[f"{name}{suffix}"] = pd.DataFrame({k: _col(v) for k, v in table.items()})
+        if self.profiles is not None and self.n_links:
+            p = self.profiles
+            counts = np.diff(p.offsets)
+            out[f"link_profiles{suffix}"] = pd.DataFrame({
+                "link_id": np.repeat(np.asarray(self.links["link_id"]), counts),
+                "station_m": p.station_m, "ground_m": p.ground_m})
+        return out
+
+    def write_gpkg(self, path, *, overwrite=False, suffix=""):
+        """Write ``links``, ``nodes``, ``run_info`` (and tables) to a GeoPackage.
+
+        Other layers already in the file are kept; existing layers of the same
+        names are refused unless ``overwrite=True``.
+        """
+        from .writers.gpkg import write_layers
+
+        write_layers(path, self.to_frames(suffix=suffix), overwrite=overwrite)
+        return path
+
+    def summary(self) -> str:
+        """A one-screen text summary."""
+        ri = self.run_info
+        lines = [
+            f"sites           {self.n_nodes}",
+            f"candidate links {ri.get('n_candidates', '?')} ({ri.get('candidates', '?')})"
+            + (f", {ri.get('n_impassable')} impassable dropped" if ri.get('n_impassable', '0') not in ('0', 0) else ""),
+            f"tree links      {self.n_links} from {ri.get('n_roots', '?')} root(s)",
+            f"total length    {self.total('length_m'):,.1f} m",
+            f"total cost      {self.total('cost'):,.1f}",
+            f"certificate     {ri.get('certificate', '?')}",
+            f"working CRS     {ri.get('working_crs', self.crs.name)}",
+        ]
+        return "\n".join(lines)
+
+
+def _col(v):
+    a = np.asarray(v)
+    if a.dtype == object:
+        return a.astype(str)
+    return a
+
+
+def file_sha256(path) -> str:
+    h = hashlib.sha256()
+    with open(path, "rb") as f:
+        for chunk in iter(lambda: f.read(1 << 20), b""):
+            h.update(chunk)
+    return h.hexdigest()
+
+
+def read_layout(path, *, suffix="") -> Layout:
+    """Read a layout written by :meth:`Layout.write_gpkg` back from a GeoPackage."""
+    import shapely
+
+    from .writers.gpkg import list_layers, read_table
+
+    links_df = read_table(path, f"links{suffix}")
+    nodes_df = read_table(path, f"nodes{suffix}")
+    names = list_layers(path)
+    info = {}
+    if f"run_info{suffix}" in names:
+        t = read_table(path, f"run_info{suffix}")
+        info = dict(zip(t["key"].astype(str), t["value"].astype(str)))
+    crs = pyproj.CRS.from_user_input(nodes_df.crs) if nodes_df.crs is not None else None
+    node_xy = shapely.get_coordinates(np.asarray(nodes_df.geometry.values))[:, :2]
+    nodes = {c: nodes_df[c].to_numpy() for c in nodes_df.columns if c != nodes_df.geometry.name}
+    links = {c: links_df[c].to_numpy() for c in links_df.columns if c != links_df.geometry.name}
+    ids = np.asarray(nodes["node_id"]).astype(str)
+    lookup = {k: i for i, k in enumerate(ids)}
+    try:
+        ends = np.array([[lookup[str(a)], lookup[str(b)]] for a, b in
+                         zip(links["from_node"], links["to_node"])], dtype=np.int64).reshape(-1, 2)
+    except KeyError as exc:
+        raise InputError(f"{path!r}: link refers to node {exc.args[0]!r} missing from "
+                         f"nodes{suffix}; the file is damaged or not a mainspan layout") from None
+    tables = {}
+    for name in ("quantities", "checks"):
+        if f"{name}{suffix}" in names:
+            t = read_table(path, f"{name}{suffix}")
+            tables[name] = {c: t[c].to_numpy() for c in t.columns}
+    profiles = None
+    if f"link_profiles{suffix}" in names and len(links.get("link_id", [])):
+        t = read_table(path, f"link_profiles{suffix}")
+        lid = t["link_id"].to_numpy()
+        order = {int(v): i for i, v in enumerate(links["link_id"])}
+        idx = np.array([order[int(v)] for v in lid], dtype=np.int64)
+        srt = np.argsort(idx, kind="stable")
+        counts = np.bincount(idx, minlength=len(ends))
+        profiles = Profiles(np.concatenate([[0], np.cumsum(counts)]).astype(np.int64),
+                            t["station_m"].to_numpy(float)[srt], t["ground_m"].to_numpy(float)[srt])
+    return Layout(crs=crs, nodes=nodes, node_xy=node_xy, links=links, link_ends=ends,
+                  tables=tables, run_info=info, profiles=profiles)
+
+
+# ---------------------------------------------------------------------- pipeline
+def _inputs_info(named_paths):
+    info = {}
+    for name, p in named_paths:
+        if p is None:
+            continue
+        if isinstance(p, (str, os.PathLike)) and os.path.exists(p):
+            info[f"input:{name}"] = f"{os.fspath(p)} sha256={file_sha256(p)}"
+        else:
+            info[f"input:{name}"] = str(p)
+    return info
+
+
+def _path_sums(parent, order, link_of_node, link_cost):
+    """Hops and cost from each node to its root, processing nodes in grow order."""
+    n = len(parent)
+    hops = np.zeros(n, dtype=np.int64)
+    cost = np.zeros(n)
+    # order lists parents before children, so one vectorised pass per depth
+    # level would work; a cumulative walk in grow order is simplest and O(n).
+    from ._kernels import path_sums
+
+    return path_sums(parent, order, link_of_node, link_cost, hops, cost)
+
+
+def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, class_costs=None,
+                raster_crs=None, on_nodata="barrier", sample_spacing_m=None, weights=None,
+                candidates="delaunay", k=8, max_link_m=None, max_complete_nodes=5000,
+                roots=None, allow_forest=False, use_site_z=False, system=None, design=None,
+                layout="tree", progress=None, extra_run_info=None):
+    """Plan the cheapest network of mains over the ground for a set of sites.
+
+    Parameters
+    ----------
+    sites : Sites or path
+        From :func:`mainspan.read_sites`, or a path read with its defaults.
+    terrain : path, optional
+        DEM raster; gives elevations, surface lengths, climb and slope.
+    land_cost : path or dict of name -> path, optional
+        Rasters of cost per metre of main laid through each cell.
+    cost_expression : str, optional
+        Unit cost per metre combining the named ``land_cost`` rasters cell by cell.
+    class_costs : dict, optional
+        Class code → cost per metre, for a categorical ``land_cost`` raster.
+    raster_crs : CRS-like, optional
+        CRS of rasters that carry none.
+    on_nodata : {"barrier", "skip", "error"}, default "barrier"
+    sample_spacing_m : float, optional
+        Terrain sampling step (default: half a cell).
+    weights : CostWeights or dict, optional
+        Cost weights (see :class:`mainspan.costs.CostWeights`).
+    candidates : str, default "delaunay"
+        Candidate builder name or a union such as ``"delaunay+knn"``.
+    k : int, default 8
+    max_link_m : float, optional
+    roots : sequence of site ids, optional
+        Roots of the network; default: sites with role source/outlet, else the first site.
+    allow_forest : bool, default False
+        Return one tree per connected part instead of failing.
+    use_site_z : bool, default False
+        Prefer the sites' own Z over the DEM for node elevations.
+    system : {None, "pressure", "gravity"}
+        Size and check the tree as pressure or gravity mains.
+    design : DesignSettings or dict, optional
+    layout : {"tree", "gravity"}, default "tree"
+        ``"gravity"`` grows a minimum-cost arborescence towards the outlet
+        with direction-dependent costs (Chu–Liu/Edmonds) instead of Prim's tree.
+    progress : callable, optional
+        ``progress(stage, done, total)``.
+
+    Returns
+    -------
+    Layout
+
+    Examples
+    --------
+    >>> import numpy as np, mainspan as ms
+    >>> s = ms.sites_from_arrays([[0, 0], [100, 0], [100, 100], [0, 100]], crs="EPSG:32633")
+    >>> lay = ms.plan_layout(s)
+    >>> lay.n_links, round(lay.total("length_m"), 1)
+    (3, 300.0)
+    """
+    from .candidates import build_candidates
+    from .costs import CostWeights, node_elevations, price_links
+    from .sites import Sites, read_sites
+    from .spanning import certify_tree, prim_tree
+
+    t0 = time.perf_counter()
+    say = progress or (lambda *a: None)
+    if not isinstance(sites, Sites):
+        sites = read_sites(sites)
+    n = sites.n
+    if layout not in ("tree", "gravity"):
+        raise InputError(f"option --layout: must be 'tree' or 'gravity', got {layout!r}")
+    if system not in (None, "pressure", "gravity"):
+        raise InputError(f"option --system: must be 'pressure' or 'gravity', got {system!r}")
+    if layout == "gravity" and system != "gravity":
+        raise InputError("option --layout gravity needs --system gravity (it grows the tree "
+                         "towards a gravity outlet); add --system gravity")
+    if weights is None:
+        weights = CostWeights()
+    elif isinstance(weights, dict):
+        weights = CostWeights(**weights)
+
+    say("candidates", 0, 1)
+    cands = build_candidates(sites.xy, candidates, k=k, max_link_m=max_link_m,
+                             max_complete_nodes=max_complete_nodes)
+    edges = cands.edges
+    say("candidates", 1, 1)
+
+    say("costs", 0, 1)
+    costs = price_links(sites.xy, edges, working_crs=sites.crs, terrain=terrain,
+                        land_cost=land_cost, cost_expression=cost_expression,
+                        class_costs=class_costs, weights=weights, on_nodata=on_nodata,
+                        sample_spacing_m=sample_spacing_m, raster_crs=raster_crs,
+                        progress=(lambda d, t: say("costs", d, t)))
+    say("costs", 1, 1)
+
+    if roots is not None and len(roots):
+        root_idx = sites.index_of(roots)
+    else:
+        root_idx = sites.default_roots()
+
+    # Node elevations: DEM, or the sites' own Z when asked (and where given).
+    elev = np.full(n, np.nan)
+    outside_ids = []
+    if terrain is not None:
+        elev = node_elevations(sites.xy, terrain, working_crs=sites.crs, raster_crs=raster_crs)
+        outside = ~np.isfinite(elev)
+        if use_site_z:
+            has = np.isfinite(sites.elevation)
+            elev = np.where(has, sites.elevation, elev)
+            outside &= ~has
+        if outside.any():
+            outside_ids = [str(v) for v in sites.node_id[outside]]
+            raise InputError(
+                f"{len(outside_ids)} site(s) lie outside the terrain raster or on nodata: "
+                f"{', '.join(outside_ids[:8])}{' …' if len(outside_ids) > 8 else ''}; extend the "
+                "DEM, remove those sites, or give their Z with --use-site-z")
+    elif use_site_z:
+        elev = sites.elevation.copy()
+
+    passable = np.asarray(costs.passable, bool)
+    keep = np.flatnonzero(passable)
+    w_all = np.asarray(costs.total, float)
+    say("tree", 0, 1)
+    directed_info = None
+    if layout == "gravity":
+        tree, directed_info = _gravity_tree(sites, edges, keep, w_all, costs, elev, root_idx,
+                                            design)
+        cert = None
+    else:
+        sub_edges = edges[keep]
+        tree_k = prim_tree(n, sub_edges, w_all[keep], roots=root_idx, allow_forest=allow_forest)
+        cert = certify_tree(n, sub_edges, w_all[keep], tree_k)
+        if not cert.ok:
+            raise CertificateError(
+                f"optimality certificate failed at candidate link {cert.violating_edge}: the "
+                "tree is not minimum over the candidates; this is a bug, please report it")
+        tree = _remap_tree(tree_k, keep)
+    say("tree", 1, 1)
+
+    # Links in grow order, oriented from the root.
+    order = np.asarray(tree.order, dtype=np.int64)
+    child = order[tree.parent[order] >= 0]
+    parent = tree.parent[child]
+    eidx = tree.parent_edge[child]
+    L = len(child)
+    flip = edges[eidx, 0] != parent          # candidate stored (child, parent)
+    comp = costs.components
+    links = {
+        "link_id": np.arange(1, L + 1, dtype=np.int64),
+        "from_node": sites.node_id[parent].astype(str),
+        "to_node": sites.node_id[child].astype(str),
+        "grow_order": np.arange(1, L + 1, dtype=np.int64),
+        "candidate_index": eidx.astype(np.int64),
+    }
+    for name, arr in comp.items():
+        a = np.asarray(arr)[eidx]
+        links[name] = a
+    if "z_from_m" in comp:
+        zf, zt = links["z_from_m"].copy(), links["z_to_m"].copy()
+        links["z_from_m"] = np.where(flip, zt, zf)
+        links["z_to_m"] = np.where(flip, zf, zt)
+        if terrain is not None:
+            links["z_from_m"] = elev[parent]
+            links["z_to_m"] = elev[child]
+    if "climb_m" in comp and "descent_m" in comp:
+        c, d = links["climb_m"].copy(), links["descent_m"].copy()
+        links["climb_m"] = np.where(flip, d, c)
+        links["descent_m"] = np.where(flip, c, d)
+    links["cost"] = w_all[eidx] if directed_info is None else directed_info["cost"][child]
+    links["max_slope_pct"] = links.get("max_slope_pct", np.full(L, np.nan))
+
+    link_of_node = np.full(n, -1, dtype=np.int64)
+    link_of_node[child] = np.arange(L)
+    hops, cost_to_root = _path_sums(tree.parent, order, link_of_node, links["cost"])
+    nodes = {
+        "node_id": sites.node_id.astype(str),
+        "role": sites.role.astype(str),
+        "demand_lps": sites.demand.astype(float),
+        "elevation_m": elev,
+        "parent_node": np.where(tree.parent >= 0, sites.node_id[np.maximum(tree.parent, 0)], "")
+        .astype(str),
+        "hops_to_root": hops,
+        "cost_to_root": cost_to_root,
+    }
+    link_ends = np.column_stack([parent, child]).astype(np.int64)
+
+    profiles = None
+    if terrain is not None and L:
+        from .surfaces import open_surface
+        from .layout import Profiles as _P
+        surf = open_surface(terrain, working_crs=sites.crs, raster_crs=raster_crs)
+        off, st, z = surf.profiles(sites.xy[parent], sites.xy[child], spacing_m=sample_spacing_m)
+        profiles = _P(np.asarray(off, np.int64), np.asarray(st, float), np.asarray(z, float))
+
+    lay = Layout(crs=sites.crs, nodes=nodes, node_xy=sites.xy.copy(), links=links,
+                 link_ends=link_ends, profiles=profiles, sites=sites, candidates=cands,
+                 costs=costs, tree=tree, certificate=cert)
+
+    if system is not None:
+        say("design", 0, 1)
+        _design(lay, system, design, tree)
+        say("design", 1, 1)
+
+    kmin, kmax = _scale(sites)
+    land_paths = land_cost if isinstance(land_cost, dict) else (
+        {"land_cost": land_cost} if land_cost is not None else {})
+    info = {
+        "tool": "mainspan",
+        "version": __version__,
+        "working_crs": sites.crs.name,
+        "working_crs_epsg": str(sites.crs.to_epsg() or ""),
+        "working_crs_reason": sites.crs_reason,
+        "working_crs_wkt": sites.crs.to_wkt(),
+        "grid_scale_factor_min": f"{kmin:.8f}",
+        "grid_scale_factor_max": f"{kmax:.8f}",
+        "sites": str(sites.path or ""),
+        "sites_layer": str(sites.layer or ""),
+        "n_sites": str(n),
+        "merged_sites": "; ".join(f"{a}<-{b}" for a, b in sites.merged),
+        "candidates": str(candidates),
+        "k": str(k),
+        "max_link_m": "" if max_link_m is None else f"{max_link_m:g}",
+        "n_candidates": str(len(edges)),
+        "n_dropped_long": str(getattr(cands, "n_dropped_long", 0)),
+        "n_impassable": str(int((~passable).sum())),
+        "terrain": "" if terrain is None else os.fspath(terrain),
+        "land_cost": "; ".join(f"{k_}={os.fspath(v)}" for k_, v in land_paths.items()),
+        "cost_expression": cost_expression or "",
+        "on_nodata": on_nodata,
+        "weights": _fmt_dataclass(weights),
+        "roots": ", ".join(sites.node_id[np.asarray(tree.roots, np.int64)].astype(str)),
+        "n_roots": str(len(tree.roots)),
+        "layout": layout,
+        "system": system or "",
+        "n_links": str(L),
+        "total_length_m": f"{lay.total('length_m'):.3f}",
+        "total_cost": f"{lay.total('cost'):.3f}",
+        "certificate": ("cycle property holds for all "
+                        f"{cert.n_checked} non-tree candidates (min margin "
+                        f"{cert.worst_margin:.6g})" if cert is not None and cert.ok else
+                        "not applicable (directed arborescence; optimality by Edmonds)"
+                        if cert is None else "FAILED"),
+        "certificate_ok": "" if cert is None else str(bool(cert.ok)).lower(),
+        "elapsed_s": "",  # filled below but excluded from determinism checks
+    }
+    for name, p in (("sites", sites.path), ("terrain", terrain)):
+        info.update(_inputs_info([(name, p)]))
+    info.update(_inputs_info(list(land_paths.items())))
+    if lay.design is not None:
+        for k_, v in getattr(lay.design, "summary", {}).items():
+            info[f"design:{k_}"] = str(v)
+        info["design_settings"] = _fmt_dataclass(lay.design_settings)
+    if extra_run_info:
+        info.update({str(k_): str(v) for k_, v in extra_run_info.items()})
+    info.pop("elapsed_s")
+    lay.run_info = info
+    lay.elapsed_s = time.perf_counter() - t0
+    return lay
+
+
+def _fmt_dataclass(obj):
+    from dataclasses import asdict, is_dataclass
+    if obj is None:
+        return ""
+    if is_dataclass(obj):
+        return ", ".join(f"{k}={v}" for k, v in asdict(obj).items())
+    return str(obj)
+
+
+def _scale(sites):
+    from .crs import scale_factor_range
+    try:
+        return scale_factor_range(sites.xy, sites.crs)
+    except Exception:  # a CRS PROJ cannot give factors for: report NaN, do not fail
+        return (float("nan"), float("nan"))
+
+
+def _remap_tree(tree_k, keep):
+    """Map a tree grown on the passable subset back to candidate indices."""
+    from dataclasses import replace
+    pe = np.asarray(tree_k.parent_edge).copy()
+    m = pe >= 0
+    pe[m] = keep[pe[m]]
+    return replace(tree_k, parent_edge=pe)
+
+
+def _design(lay, system, design, tree):
+    from .hydraulics import DesignSettings, design_network
+
+    if design is None:
+        design = DesignSettings()
+    elif isinstance(design, dict):
+        design = DesignSettings(**design)
+    L = lay.n_links
+    p = lay.profiles
+    land = lay.links.get("land_cost")
+    res = design_network(
+        system, xy=lay.node_xy, elevation_m=np.asarray(lay.nodes["elevation_m"], float),
+        demand_lps=np.asarray(lay.nodes["demand_lps"], float),
+        node_id=np.asarray(lay.nodes["node_id"]),
+        from_node=lay.link_ends[:, 0], to_node=lay.link_ends[:, 1],
+        length_m=np.asarray(lay.links["length_m"], float),
+        surface_length_m=np.asarray(lay.links.get("surface_length_m", lay.links["length_m"]),
+                                    float),
+        roots=np.asarray(tree.roots, np.int64),
+        profile_offsets=None if p is None else p.offsets,
+        profile_station_m=None if p is None else p.station_m,
+        profile_ground_m=None if p is None else p.ground_m,
+        land_cost=None if land is None else np.asarray(land, float),
+        settings=design)
+    for k_, v in res.link_fields.items():
+        if len(v) != L:
+            raise RuntimeError(f"design field {k_} has {len(v)} rows for {L} links")
+        lay.links[k_] = v
+    for k_, v in res.node_fields.items():
+        lay.nodes[k_] = v
+    if res.quantities:
+        lay.tables["quantities"] = res.quantities
+    lay.design = res
+    lay.design_settings = design
+
+
+def _gravity_tree(sites, edges, keep, w_all, costs, elev, root_idx, design):
+    from .arborescence import directional_link_costs, min_arborescence
+
+    if len(root_idx) != 1:
+        raise InputError(f"--layout gravity needs exactly one outlet (root), got "
+                         f"{len(root_idx)}; give one site the role 'outlet' or use --root")
+    if not np.isfinite(elev).all():
+        raise InputError("--layout gravity needs ground elevations at every site: give "
+                         "--terrain (or site Z with --use-site-z)")
+    e = edges[keep]
+    w = w_all[keep]
+    tails, heads, dw = directional_link_costs(e, w, elev, settings=design)
+    res = min_arborescence(sites.n, tails, heads, dw, root=int(root_idx[0]))
+    return res, {"cost": res.node_cost if hasattr(res, "node_cost") else None}

@@ -1,0 +1,1 @@
+"""The review report and its plots: each takes a :class:`mainspan.layout.Layout`."""

@@ -1,0 +1,1 @@
+"""Writers: each takes a :class:`mainspan.layout.Layout` and nothing else."""

@@ -1,0 +1,76 @@
+"""Generate the demo sites (invented scenarios, fixed seed, identical output each run).
+
+* Kestrel Flats irrigation scheme — one pump station (``PS-1``) by the stream
+  and about 150 field outlets (hydrants) on the fields, demand in L/s.
+* Harrow Brook drainage catchment — inlets on the slopes draining to one
+  outlet near the valley's low end.
+
+Both are in EPSG:32633 (WGS 84 / UTM 33N) inside the demo terrain's extent
+(x 512 000–515 000 m, y 5 120 000–5 122 500 m).  Run from the repository
+root::
+
+    python sample_data/make_demo.py
+
+The rasters come from ``sample_data/make_rasters.py``.
+"""
+
+from __future__ import annotations
+
+import os
+
+import numpy as np
+
+HERE = os.path.dirname(os.path.abspath(__file__))
+CRS = "EPSG:32633"
+X0, X1, Y0, Y1 = 512000.0, 515000.0, 5120000.0, 5122500.0
+
+
+def kestrel_outlets(seed=20261201):
+    rng = np.random.default_rng(seed)
+    # fields on a 11 x 14 grid of ~210 m x 180 m blocks, one hydrant per field,
+    # jittered inside the field; a few fields left out (farmyard, copse).
+    xs = np.linspace(X0 + 180, X1 - 180, 14)
+    ys = np.linspace(Y0 + 160, Y1 - 160, 11)
+    gx, gy = np.meshgrid(xs, ys)
+    pts = np.column_stack([gx.ravel(), gy.ravel()])
+    pts += rng.uniform(-55, 55, pts.shape)
+    keep = rng.random(len(pts)) > 0.03
+    pts = pts[keep][:150]
+    q = np.round(rng.uniform(0.2, 1.0, len(pts)), 2)          # L/s per hydrant
+    ids = [f"H{i + 1:03d}" for i in range(len(pts))]
+    roles = ["demand"] * len(pts)
+    pts = np.vstack([[[512400.0, 5120600.0]], pts])
+    return ["PS-1"] + ids, ["source"] + roles, np.concatenate([[0.0], q]), pts
+
+
+def harrow_inlets(seed=7031):
+    rng = np.random.default_rng(seed)
+    n = 60
+    # inlets spread over the north-eastern half of the demo area
+    pts = np.column_stack([rng.uniform(512900, 514850, n), rng.uniform(5120900, 5122400, n)])
+    q = np.round(rng.uniform(1.0, 5.0, n), 2)
+    ids = [f"IN{i + 1:02d}" for i in range(n)]
+    pts = np.vstack([[[514800.0, 5122300.0]], pts])
+    return ["OUT-1"] + ids, ["outlet"] + ["demand"] * n, np.concatenate([[0.0], q]), pts
+
+
+def _write(path, layer, ids, roles, q, pts):
+    import geopandas as gpd
+    import pyogrio
+    import shapely
+
+    pyogrio.set_gdal_config_options({"OGR_CURRENT_DATE": "2000-01-01T00:00:00.000Z"})
+    gdf = gpd.GeoDataFrame({"id": ids, "role": roles, "q_lps": q},
+                           geometry=shapely.points(pts), crs=CRS)
+    if os.path.exists(path):
+        os.remove(path)
+    pyogrio.write_dataframe(gdf, path, layer=layer, driver="GPKG")
+
+
+def main():
+    _write(os.path.join(HERE, "kestrel_outlets.gpkg"), "outlets", *kestrel_outlets())
+    _write(os.path.join(HERE, "harrow_inlets.gpkg"), "inlets", *harrow_inlets())
+
+
+if __name__ == "__main__":
+    main()
