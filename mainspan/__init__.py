@@ -9,18 +9,35 @@ Results are preliminary design aids, to be checked by a licensed engineer
 against local codes; locate existing services before digging.
 """
 
+from importlib import import_module
+
 from ._version import __version__
 from .errors import (CertificateError, DataFileError, DisconnectedError, InputError,
                      MainspanError, OverwriteError)
-from .layout import Layout, plan_layout, read_layout
-from .sites import Sites, read_sites, sites_from_arrays
-from .spanning import Tree, certify_tree, prim_tree
-from .candidates import build_candidates
-from .versions import show_versions
 
-__all__ = [
-    "__version__", "Layout", "Sites", "Tree", "plan_layout", "read_layout", "read_sites",
-    "sites_from_arrays", "prim_tree", "certify_tree", "build_candidates", "show_versions",
+# Public names are imported on first use, so ``import mainspan`` stays quick and
+# the command line pays only for the stages it runs.
+_LAZY = {
+    "Layout": "layout", "plan_layout": "layout", "read_layout": "layout",
+    "Sites": "sites", "read_sites": "sites", "sites_from_arrays": "sites",
+    "Tree": "spanning", "prim_tree": "spanning", "certify_tree": "spanning",
+    "build_candidates": "candidates", "show_versions": "versions",
+}
+
+__all__ = sorted([
+    "__version__", *_LAZY,
     "MainspanError", "InputError", "DataFileError", "DisconnectedError", "CertificateError",
     "OverwriteError",
-]
+])
+
+
+def __getattr__(name):
+    if name in _LAZY:
+        value = getattr(import_module(f".{_LAZY[name]}", __name__), name)
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module 'mainspan' has no attribute {name!r}")
+
+
+def __dir__():
+    return __all__
