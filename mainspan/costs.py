@@ -1,0 +1,758 @@
+"""Price every candidate link along the ground it crosses.
+
+:func:`price_links` turns candidate links (int64 node pairs over working-CRS
+points) into :class:`LinkCosts`: one float64 column per cost component and a
+``total`` that the spanning stage minimises.  The built-in terms are
+
+``terrain``
+    Bilinear ground profile of each link from the terrain raster, sampled at
+    no more than half a cell (``sample_spacing_m``): ``surface_length_m`` (3D
+    length along the profile; a step without data counts its plan length),
+    ``climb_m`` / ``descent_m`` (sums of the positive / negative rises from
+    ``edges[:, 0]`` to ``edges[:, 1]``), ``max_slope_pct`` (largest
+    |rise| / run over profile steps, x 100), ``steep_length_m`` (plan length
+    of the steps steeper than ``steep_slope_pct``), ``z_from_m`` and
+    ``z_to_m``.  Cost: ``climb * climb_m + descent * descent_m +
+    steep_per_m * steep_length_m``.
+``land``
+    Exact line integral of the land-cost rasters (cost per metre of main laid
+    through the cell) over the plan path -- see
+    :meth:`mainspan.surfaces.Surface.line_integral`.  With several named
+    rasters the land cost is their sum (one ``land_cost_<name>`` column
+    each); with ``cost_expression`` the expression is evaluated per crossed
+    cell and then integrated (the rasters it uses must share one grid);
+    ``class_costs`` turns a class raster into cost per metre by a table
+    before either.  Cost: ``land * land_cost``.
+``length``
+    Cost: ``length * surface_length_m`` (the pipe follows the ground; without
+    terrain the surface length is the plan length).  ``fixed`` is added per
+    link on top of all terms.
+
+Cost-term protocol (entry-point group ``mainspan.cost_terms``)
+-------------------------------------------------------------
+A cost term is a callable ``term(ctx) -> dict[str, numpy.ndarray]`` where
+``ctx`` is a :class:`CostContext` (the links, their plan lengths, the opened
+surfaces, the weights, and ``ctx.components`` -- every column computed by the
+built-in terms and by earlier terms, read-only).  The returned mapping holds
+
+* ``"cost"`` (required): float64 array of shape (m,), the term's addition to
+  ``total``; ``inf`` makes a link impassable (counted under the term's name);
+* ``"nodata_m"`` (optional): float64 (m,), plan length of the link the term
+  could not price for lack of data -- the ``on_nodata`` policy is applied to
+  it and it feeds ``nodata_fraction``; ``"nodata_source"`` (optional, str)
+  names the raster for messages;
+* any other key: a new float64 (m,) component column, added after the
+  built-in columns in the order given.  Names must not clash with existing
+  columns.
+
+Register with ``COST_TERMS.register("name")`` or an entry point
+``[project.entry-points."mainspan.cost_terms"] name = "pkg.module:func"``,
+then pass ``extra_terms=("name",)`` (or the callable itself).
+
+Nodata policy (``on_nodata``): a link crossing cells without data (nodata
+value, mask, non-finite, or outside the raster) is ``"barrier"`` -- not
+buildable, total ``inf``, counted in ``n_impassable`` and ``reasons``;
+``"skip"`` -- the gap costs nothing (no land cost, no climb; plan length only);
+``"error"`` -- :class:`~mainspan.errors.InputError` naming the first such link.
+A class code missing from ``class_costs`` is always an error (a silently free
+class would be a wrong answer); nodata cells of a class raster are nodata.
+
+References
+----------
+.. [1] J. Amanatides and A. Woo, "A Fast Voxel Traversal Algorithm for Ray
+   Tracing", Eurographics '87, 1987 (the cell traversal behind the land cost).
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import re
+from dataclasses import dataclass, field, fields
+from typing import Callable
+
+import numba
+import numpy as np
+import pyproj
+
+from .errors import InputError
+from .expression import FUNCTIONS, compile_expression
+from .plugins import Registry
+from .surfaces import Surface, open_surface
+
+__all__ = [
+    "COST_TERMS",
+    "OPTION_NAMES",
+    "CostContext",
+    "CostWeights",
+    "LinkCosts",
+    "node_elevations",
+    "price_links",
+    "sites_outside",
+]
+
+# command-line spelling of each weight, for messages (the CLI uses the same names)
+OPTION_NAMES = {
+    "length": "--w-length",
+    "land": "--w-land",
+    "climb": "--w-climb",
+    "descent": "--w-descent",
+    "steep_slope_pct": "--steep-slope-pct",
+    "steep_per_m": "--w-steep",
+    "fixed": "--w-fixed",
+}
+
+BASE_COMPONENTS = (
+    "length_m", "surface_length_m", "land_cost", "climb_m", "descent_m", "max_slope_pct",
+    "steep_length_m", "nodata_fraction", "z_from_m", "z_to_m",
+)
+_POLICIES = ("barrier", "skip", "error")
+_NAME = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
+_CHUNK_SAMPLES = 2_000_000
+
+
+def _check_term(name, fn):
+    from .plugins import PluginError
+
+    if not callable(fn):
+        raise PluginError(f"cost term {name!r} must be callable as term(ctx) -> dict")
+
+
+COST_TERMS = Registry("cost term", "mainspan.cost_terms", option="--cost-term", check=_check_term)
+
+
+@dataclass(frozen=True)
+class CostWeights:
+    """Prices that turn link components into a total.
+
+    Parameters
+    ----------
+    length : float, default=1.0
+        Price per metre of main (surface length).
+    land : float, default=1.0
+        Multiplier on the integrated land cost.
+    climb : float, default=0.0
+        Price per metre climbed (from ``edges[:, 0]`` to ``edges[:, 1]``).
+    descent : float, default=0.0
+        Price per metre descended.
+    steep_slope_pct : float or None, default=None
+        Slope threshold in percent; ``None`` switches the steep term off.
+    steep_per_m : float, default=0.0
+        Price per metre of plan length steeper than ``steep_slope_pct``.
+    fixed : float, default=0.0
+        Price per link.
+
+    Examples
+    --------
+    >>> CostWeights(climb=2.0).climb
+    2.0
+    >>> CostWeights(climb=-1)
+    Traceback (most recent call last):
+    ...
+    mainspan.errors.InputError: --w-climb (CostWeights.climb) must be a finite number >= 0; got -1
+    """
+
+    length: float = 1.0
+    land: float = 1.0
+    climb: float = 0.0
+    descent: float = 0.0
+    steep_slope_pct: float | None = None
+    steep_per_m: float = 0.0
+    fixed: float = 0.0
+
+    def __post_init__(self):
+        for f in fields(self):
+            v = getattr(self, f.name)
+            if f.name == "steep_slope_pct" and v is None:
+                continue
+            opt = f"{OPTION_NAMES[f.name]} (CostWeights.{f.name})"
+            if isinstance(v, bool) or not isinstance(v, (int, float, np.integer, np.floating)) \
+                    or not math.isfinite(v) or v < 0:
+                raise InputError(f"{opt} must be a finite number >= 0; got {v!r}")
+            object.__setattr__(self, f.name, float(v))
+        if self.steep_per_m > 0 and self.steep_slope_pct is None:
+            raise InputError(f"{OPTION_NAMES['steep_per_m']} is {self.steep_per_m} but no slope "
+                             f"threshold is set; give {OPTION_NAMES['steep_slope_pct']} too")
+
+
+@dataclass
+class LinkCosts:
+    """Cost components and totals of m candidate links (struct of arrays).
+
+    Attributes
+    ----------
+    components : dict of str -> ndarray of float64, shape (m,)
+        ``length_m, surface_length_m, land_cost, climb_m, descent_m,
+        max_slope_pct, steep_length_m, nodata_fraction, z_from_m, z_to_m``,
+        then one ``land_cost_<name>`` per named land-cost raster, then the
+        columns of extra terms.
+    total : ndarray of float64, shape (m,)
+        The price of each link; ``inf`` where impassable.
+    passable : ndarray of bool, shape (m,)
+    n_impassable : int
+    reasons : dict of str -> int
+        Count of impassable links by reason.
+    reason_code : ndarray of int16, shape (m,)
+        Index into ``reason_labels`` per link, -1 where passable.
+    reason_labels : tuple of str
+    """
+
+    components: dict
+    total: np.ndarray
+    passable: np.ndarray
+    n_impassable: int
+    reasons: dict
+    reason_code: np.ndarray = field(repr=False)
+    reason_labels: tuple = ()
+
+    def __len__(self):
+        return int(self.total.shape[0])
+
+    def reason(self, i) -> str:
+        """Why link *i* is impassable ('' if it is passable)."""
+        c = int(self.reason_code[i])
+        return "" if c < 0 else self.reason_labels[c]
+
+    def subset(self, idx) -> "LinkCosts":
+        """The links selected by *idx* (integer indices or a boolean mask), in that order."""
+        idx = np.asarray(idx)
+        comps = {k: v[idx] for k, v in self.components.items()}
+        code = self.reason_code[idx]
+        passable = self.passable[idx]
+        return LinkCosts(comps, self.total[idx], passable, int((~passable).sum()),
+                         _count_reasons(code, self.reason_labels), code, self.reason_labels)
+
+
+def _count_reasons(code, labels):
+    counts = np.bincount(code[code >= 0], minlength=len(labels))
+    return {labels[i]: int(c) for i, c in enumerate(counts) if c}
+
+
+@dataclass
+class CostContext:
+    """What a cost term sees (read-only by convention).
+
+    Attributes: ``xy`` (n, 2), ``edges`` (m, 2), ``p0``/``p1`` (m, 2) link ends,
+    ``length_m`` (m,), ``weights`` (:class:`CostWeights`), ``working_crs``
+    (pyproj CRS), ``terrain`` (:class:`~mainspan.surfaces.Surface` or None),
+    ``land`` (dict name -> Surface; the single unnamed raster is called
+    ``land_cost``), ``named_land`` (bool: names were given), ``class_tables``
+    (dict name -> (codes, costs)), ``expression`` (checked expression or
+    None), ``sample_spacing_m`` (float or None), ``components`` (columns so
+    far) and ``progress`` (``progress(done, total)`` for this term's work).
+    """
+
+    xy: np.ndarray
+    edges: np.ndarray
+    p0: np.ndarray
+    p1: np.ndarray
+    length_m: np.ndarray
+    weights: CostWeights
+    working_crs: pyproj.CRS
+    terrain: Surface | None = None
+    land: dict = field(default_factory=dict)
+    named_land: bool = False
+    class_tables: dict = field(default_factory=dict)
+    expression: object = None
+    sample_spacing_m: float | None = None
+    components: dict = field(default_factory=dict)
+    progress: Callable | None = None
+
+    @property
+    def m(self) -> int:
+        return int(self.edges.shape[0])
+
+
+# --------------------------------------------------------------------------- built-in terms
+
+@numba.njit(cache=True)
+def _profile_stats(offsets, station, z, steep_pct, sel, surf, climb, desc, maxs, steep, nod,
+                   zf, zt):
+    for q in range(sel.shape[0]):
+        i = sel[q]
+        a = offsets[q]
+        b = offsets[q + 1]
+        s_len = 0.0
+        c = 0.0
+        d = 0.0
+        mx = -1.0
+        st = 0.0
+        nd = 0.0
+        for k in range(a, b - 1):
+            ds = station[k + 1] - station[k]
+            z0 = z[k]
+            z1 = z[k + 1]
+            if np.isnan(z0) or np.isnan(z1):
+                nd += ds
+                s_len += ds
+                continue
+            dz = z1 - z0
+            s_len += math.sqrt(ds * ds + dz * dz)
+            if dz > 0:
+                c += dz
+            else:
+                d -= dz
+            if ds > 0:
+                slope = abs(dz) / ds * 100.0
+                if slope > mx:
+                    mx = slope
+                if steep_pct >= 0 and slope > steep_pct:
+                    st += ds
+        surf[i] = s_len
+        climb[i] = c
+        desc[i] = d
+        if mx >= 0:
+            maxs[i] = mx
+        elif nd > 0:
+            maxs[i] = np.nan
+        else:
+            maxs[i] = 0.0
+        steep[i] = st
+        nod[i] = nd
+        zf[i] = z[a]
+        zt[i] = z[b - 1]
+
+
+@COST_TERMS.register("terrain")
+def terrain_term(ctx: CostContext) -> dict:
+    """Ground profile components and the climb / descent / steep prices."""
+    m = ctx.m
+    w = ctx.weights
+    if ctx.terrain is None:
+        nan = np.full(m, np.nan)
+        zero = np.zeros(m)
+        return {"surface_length_m": ctx.length_m.copy(), "climb_m": zero, "descent_m": zero.copy(),
+                "max_slope_pct": zero.copy(), "steep_length_m": zero.copy(), "z_from_m": nan,
+                "z_to_m": nan.copy(), "cost": np.zeros(m)}
+    surf = ctx.terrain
+    spacing = ctx.sample_spacing_m or surf.default_spacing_m()
+    cols = {k: np.zeros(m) for k in ("surface_length_m", "climb_m", "descent_m", "max_slope_pct",
+                                      "steep_length_m", "nodata_m", "z_from_m", "z_to_m")}
+    steep_pct = -1.0 if w.steep_slope_pct is None else float(w.steep_slope_pct)
+    order = surf._link_order(ctx.p0, ctx.p1)
+    per_link = np.ceil(ctx.length_m[order] / spacing) + 2
+    csum = np.cumsum(per_link)
+    start = 0
+    while start < m:
+        base = csum[start - 1] if start else 0.0
+        end = max(start + 1, int(np.searchsorted(csum, base + _CHUNK_SAMPLES, side="right")))
+        sel = order[start:end]
+        off, station, z = surf.profiles(ctx.p0[sel], ctx.p1[sel], spacing_m=spacing)
+        _profile_stats(off, station, z, steep_pct, sel, cols["surface_length_m"], cols["climb_m"],
+                       cols["descent_m"], cols["max_slope_pct"], cols["steep_length_m"],
+                       cols["nodata_m"], cols["z_from_m"], cols["z_to_m"])
+        start = end
+        if ctx.progress is not None:
+            ctx.progress(end, m)
+    cost = w.climb * cols["climb_m"] + w.descent * cols["descent_m"]
+    if w.steep_per_m:
+        cost = cost + w.steep_per_m * cols["steep_length_m"]
+    cols["cost"] = cost
+    cols["nodata_source"] = f"terrain raster {surf.path!r}"
+    return cols
+
+
+def _apply_classes(values, table, surf):
+    codes, costs = table
+    out = np.full(values.shape, np.nan)
+    ok = ~np.isnan(values)
+    v = values[ok]
+    j = np.clip(np.searchsorted(codes, v), 0, codes.shape[0] - 1)
+    hit = codes[j] == v
+    if not hit.all():
+        missing = np.unique(v[~hit])
+        shown = ", ".join(f"{c:g}" for c in missing[:20]) + (" ..." if missing.size > 20 else "")
+        priced = ", ".join(f"{c:g}" for c in codes)
+        raise InputError(f"class raster {surf.name!r} ({surf.path}) has code(s) {shown} along the "
+                         f"links that class_costs does not price (priced: {priced}); add them to "
+                         "the class table")
+    out[ok] = costs[j]
+    return out
+
+
+@COST_TERMS.register("land")
+def land_term(ctx: CostContext) -> dict:
+    """Line integral of the land-cost rasters (sum, or a cost expression)."""
+    m = ctx.m
+    land = np.zeros(m)
+    if not ctx.land:
+        return {"land_cost": land, "cost": land.copy()}
+    per = {name: np.zeros(m) for name in ctx.land}
+    nod = np.zeros(m)
+    from .surfaces import _accumulate  # the numba accumulator shared with line_integral
+
+    n_pass = 1 if ctx.expression is not None else len(ctx.land)
+    done = [0]
+
+    def prog(d, t):
+        if ctx.progress is not None:
+            ctx.progress(done[0] + d, n_pass * t)
+
+    if ctx.expression is None:
+        for name, surf in ctx.land.items():
+            scratch = np.zeros(m)
+            outside = np.zeros(m)
+            table = ctx.class_tables.get(name)
+            for oo, rr, cc, ll in surf.iter_crossings(ctx.p0, ctx.p1, outside, progress=prog):
+                vals = surf.gather_cells(rr, cc)
+                if table is not None:
+                    vals = _apply_classes(vals, table, surf)
+                _accumulate(oo, ll, vals, per[name], scratch)
+            land += per[name]
+            nod = np.maximum(nod, scratch + outside)
+            done[0] += m
+        sources = ", ".join(f"{s.name!r} ({s.path})" for s in ctx.land.values())
+    else:
+        used = ctx.expression.names_used
+        grid = ctx.land[used[0]] if used else next(iter(ctx.land.values()))
+        outside = np.zeros(m)
+        scratch = np.zeros(m)
+        for oo, rr, cc, ll in grid.iter_crossings(ctx.p0, ctx.p1, outside, progress=prog):
+            env = {}
+            for name, surf in ctx.land.items():
+                vals = surf.gather_cells(rr, cc)
+                if name in ctx.class_tables:
+                    vals = _apply_classes(vals, ctx.class_tables[name], surf)
+                env[name] = vals
+                _accumulate(oo, ll, vals, per[name], np.zeros(m))
+            if used:
+                v = ctx.expression.evaluate(env)
+            else:  # a constant expression: one value everywhere on the grid
+                v = ctx.expression.evaluate({}) * np.ones(ll.shape[0])
+            _accumulate(oo, ll, v, land, scratch)
+        nod = scratch + outside
+        sources = f"cost expression {ctx.expression.text!r} over " + ", ".join(
+            f"{ctx.land[n].name!r} ({ctx.land[n].path})" for n in (used or tuple(ctx.land)))
+    out = {"land_cost": land}
+    if ctx.named_land:
+        for name, col in per.items():
+            out[f"land_cost_{name}"] = col
+    out["cost"] = ctx.weights.land * land
+    out["nodata_m"] = nod
+    out["nodata_source"] = f"land-cost raster(s) {sources}"
+    return out
+
+
+@COST_TERMS.register("length")
+def length_term(ctx: CostContext) -> dict:
+    """Price of the pipe itself: ``length`` per metre of surface length."""
+    return {"cost": ctx.weights.length * ctx.components["surface_length_m"]}
+
+
+_BUILTIN = ("terrain", "land", "length")
+
+
+# --------------------------------------------------------------------------- helpers
+
+def _open(src, *, working_crs, raster_crs, name, what):
+    if isinstance(src, Surface):
+        if not src.working_crs.equals(working_crs, ignore_axis_order=True):
+            raise InputError(f"{what} surface {src.path!r} was opened for working CRS "
+                             f"{src.working_crs.to_string()}, not {working_crs.to_string()}; "
+                             "open it again with the run's working CRS")
+        return src, False
+    if isinstance(src, (str, os.PathLike)):
+        return open_surface(src, working_crs=working_crs, raster_crs=raster_crs, name=name), True
+    raise InputError(f"{what} must be a raster path or a Surface; got {type(src).__name__}")
+
+
+def _class_tables(class_costs, names, named):
+    if class_costs is None:
+        return {}
+    if not isinstance(class_costs, dict) or not class_costs:
+        raise InputError(f"class_costs must be a non-empty dict {{class code: cost per m}}; "
+                         f"got {class_costs!r}")
+    if all(isinstance(v, dict) for v in class_costs.values()):
+        tables = class_costs
+    elif len(names) == 1:
+        tables = {names[0]: class_costs}
+    else:
+        raise InputError("class_costs is one table but there are several land-cost rasters "
+                         f"({', '.join(names)}); give {{raster name: {{code: cost}}}}")
+    out = {}
+    for name, table in tables.items():
+        if name not in names:
+            raise InputError(f"class_costs names raster {name!r}, which is not a land-cost raster "
+                             f"(have: {', '.join(names)})")
+        codes, costs = [], []
+        for k, v in table.items():
+            try:
+                kf, vf = float(k), float(v)
+            except (TypeError, ValueError):
+                kf = vf = float("nan")
+            if not (math.isfinite(kf) and math.isfinite(vf) and vf >= 0):
+                raise InputError(f"class_costs[{name!r}] entry {k!r}: {v!r} must map a numeric "
+                                 "class code to a finite cost per metre >= 0")
+            codes.append(kf)
+            costs.append(vf)
+        o = np.argsort(codes)
+        out[name] = (np.asarray(codes)[o], np.asarray(costs)[o])
+    return out
+
+
+def _validate_links(xy, edges):
+    xy = np.asarray(xy, dtype=np.float64)
+    if xy.ndim != 2 or xy.shape[1] != 2:
+        raise InputError(f"xy must be a float array of shape (n, 2) in working-CRS metres; "
+                         f"got shape {xy.shape}")
+    bad = ~np.isfinite(xy).all(axis=1)
+    if bad.any():
+        raise InputError(f"xy row {int(np.flatnonzero(bad)[0])} is not finite; "
+                         "every site needs real coordinates")
+    e = np.asarray(edges)
+    if e.ndim != 2 or e.shape[1] != 2 or (e.size and not np.issubdtype(e.dtype, np.integer)):
+        raise InputError(f"edges must be an int64 array of shape (m, 2); got {e.dtype} "
+                         f"shape {e.shape}")
+    e = e.astype(np.int64, copy=False)
+    if e.size and (e.min() < 0 or e.max() >= xy.shape[0]):
+        i = int(np.flatnonzero((e < 0).any(1) | (e >= xy.shape[0]).any(1))[0])
+        raise InputError(f"link {i} joins nodes {e[i, 0]}-{e[i, 1]} but there are only "
+                         f"{xy.shape[0]} sites (indices 0..{xy.shape[0] - 1})")
+    return xy, e
+
+
+# --------------------------------------------------------------------------- public API
+
+def price_links(xy, edges, *, working_crs, terrain=None, land_cost=None, cost_expression=None,
+                class_costs=None, weights=CostWeights(), on_nodata="barrier",
+                sample_spacing_m=None, raster_crs=None, extra_terms=(), progress=None):
+    """Price candidate links over terrain and land-cost rasters.
+
+    Parameters
+    ----------
+    xy : array_like of float, shape (n, 2)
+        Site coordinates in the working CRS (metres).
+    edges : array_like of int, shape (m, 2)
+        Candidate links as node-index pairs.
+    working_crs : CRS-like
+        The metric CRS of ``xy``.
+    terrain : str, os.PathLike or Surface, optional
+        Terrain raster (elevations in metres).
+    land_cost : str, os.PathLike, Surface or dict of str -> path/Surface, optional
+        Land-cost raster(s), cost per metre of main through each cell; a dict
+        names them (names are identifiers, usable in ``cost_expression``).
+    cost_expression : str, optional
+        Combine the named rasters per cell (see :mod:`mainspan.expression`);
+        needs ``land_cost`` as a dict.
+    class_costs : dict, optional
+        ``{code: cost per m}`` for the single land raster, or
+        ``{raster name: {code: cost per m}}``.
+    weights : CostWeights, default=CostWeights()
+    on_nodata : {"barrier", "skip", "error"}, default="barrier"
+    sample_spacing_m : float, optional
+        Profile spacing on the terrain; default half a terrain cell.
+    raster_crs : CRS-like, optional
+        CRS for rasters that declare none.
+    extra_terms : sequence of str or callable, default=()
+        Additional cost terms (registry names or callables; see the module
+        docstring for the protocol).
+    progress : callable, optional
+        ``progress(done, total)``; ``total`` is m times the number of passes.
+
+    Returns
+    -------
+    LinkCosts
+
+    Raises
+    ------
+    InputError
+        Bad parameters, unknown raster names, grids that differ under an
+        expression, nodata under ``on_nodata="error"``.
+    DataFileError
+        A raster cannot be opened or read.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> lc = price_links(np.array([[0.0, 0.0], [3.0, 4.0]]), np.array([[0, 1]]),
+    ...                  working_crs="EPSG:32633", weights=CostWeights(fixed=10))
+    >>> lc.total.tolist(), lc.components["length_m"].tolist()
+    ([15.0], [5.0])
+    """
+    wcrs = pyproj.CRS.from_user_input(working_crs) if not isinstance(working_crs, pyproj.CRS) \
+        else working_crs
+    xy, e = _validate_links(xy, edges)
+    if not isinstance(weights, CostWeights):
+        raise InputError(f"weights must be a CostWeights; got {type(weights).__name__}")
+    if on_nodata not in _POLICIES:
+        raise InputError(f"on_nodata (--on-nodata) must be one of {', '.join(_POLICIES)}; "
+                         f"got {on_nodata!r}")
+    if sample_spacing_m is not None and not (
+            isinstance(sample_spacing_m, (int, float)) and math.isfinite(sample_spacing_m)
+            and sample_spacing_m > 0):
+        raise InputError(f"sample_spacing_m (--sample-spacing) must be a positive length in "
+                         f"metres; got {sample_spacing_m!r}")
+    if terrain is None and (weights.climb or weights.descent or weights.steep_per_m):
+        opt = next(OPTION_NAMES[k] for k in ("climb", "descent", "steep_per_m")
+                   if getattr(weights, k))
+        raise InputError(f"{opt} prices the terrain but no terrain raster was given; "
+                         "pass terrain= (--terrain)")
+    terms = []
+    for t in extra_terms:
+        if isinstance(t, str):
+            if t in _BUILTIN:
+                raise InputError(f"cost term {t!r} always runs; remove it from extra_terms")
+            terms.append((t, COST_TERMS.get(t)))
+        elif callable(t):
+            terms.append((getattr(t, "__name__", "term"), t))
+        else:
+            raise InputError(f"extra_terms entries must be cost-term names or callables; got {t!r}")
+
+    opened = []
+    try:
+        ter = None
+        if terrain is not None:
+            ter, mine = _open(terrain, working_crs=wcrs, raster_crs=raster_crs, name="terrain",
+                              what="terrain")
+            if mine:
+                opened.append(ter)
+        land = {}
+        named = isinstance(land_cost, dict)
+        if land_cost is not None:
+            items = land_cost.items() if named else [("land_cost", land_cost)]
+            if named and not land_cost:
+                raise InputError("land_cost is an empty dict; give {name: raster path}")
+            for name, src in items:
+                if named and (not isinstance(name, str) or not _NAME.match(name)
+                              or name in FUNCTIONS or name in ("and", "or", "not")):
+                    raise InputError(f"land-cost raster name {name!r} must be an identifier "
+                                     "(letters, digits, '_') and not a function name")
+                s, mine = _open(src, working_crs=wcrs, raster_crs=raster_crs, name=name,
+                                what=f"land_cost[{name!r}]" if named else "land_cost")
+                if mine:
+                    opened.append(s)
+                land[name] = s
+        expr = None
+        if cost_expression is not None:
+            if not named:
+                raise InputError("cost_expression needs named rasters: pass land_cost={'base': "
+                                 "'landcost.tif', ...} (CLI: --land-cost base=landcost.tif)")
+            expr = compile_expression(cost_expression, names=list(land))
+            ref_name = (expr.names_used or tuple(land))[0]
+            for name in land:
+                why = land[ref_name].same_grid(land[name])
+                if why:
+                    raise InputError(f"cost expression rasters must share one grid: {name!r} "
+                                     f"({land[name].path}) differs from {ref_name!r} "
+                                     f"({land[ref_name].path}) in {why}; resample it onto the "
+                                     "same grid (e.g. gdalwarp -tap) first")
+        tables = _class_tables(class_costs, list(land), named)
+        p0 = xy[e[:, 0]]
+        p1 = xy[e[:, 1]]
+        m = e.shape[0]
+        ctx = CostContext(xy=xy, edges=e, p0=p0, p1=p1, length_m=np.hypot(*(p1 - p0).T),
+                          weights=weights, working_crs=wcrs, terrain=ter, land=land,
+                          named_land=named, class_tables=tables, expression=expr,
+                          sample_spacing_m=sample_spacing_m)
+        ctx.components["length_m"] = ctx.length_m
+
+        all_terms = [(n, COST_TERMS.get(n)) for n in _BUILTIN] + terms
+        n_work = max(1, (ter is not None) + (len(land) if expr is None else bool(land)))
+        progressed = [0]
+
+        def stage_progress(d, t):
+            if progress is not None:
+                progress(min(progressed[0] + d, n_work * m), n_work * m)
+
+        total = np.full(m, weights.fixed)
+        code = np.full(m, -1, np.int16)
+        labels: list[str] = []
+        nodata_fraction = np.zeros(m)
+        extra_cols: list[str] = []
+        for tname, fn in all_terms:
+            ctx.progress = stage_progress
+            out = fn(ctx)
+            if tname == "terrain" and ter is not None or tname == "land" and land:
+                progressed[0] += m * (1 if tname == "terrain" or expr is not None else len(land))
+            _check_output(tname, out, m, ctx.components)
+            cost = np.asarray(out["cost"], dtype=np.float64)
+            source = out.get("nodata_source", f"cost term {tname!r}")
+            nod = out.get("nodata_m")
+            if nod is not None:
+                nod = np.asarray(nod, dtype=np.float64)
+                frac = np.divide(nod, ctx.length_m, out=np.zeros(m), where=ctx.length_m > 0)
+                nodata_fraction = np.maximum(nodata_fraction, np.minimum(frac, 1.0))
+                hit = nod > 1e-9 * np.maximum(ctx.length_m, 1.0)
+                if hit.any():
+                    if on_nodata == "error":
+                        i = int(np.flatnonzero(hit)[0])
+                        raise InputError(
+                            f"link {i} (nodes {e[i, 0]}-{e[i, 1]}) crosses {nod[i]:.1f} m "
+                            f"without data in {source}; fill the gap, or choose "
+                            "on_nodata='barrier' or 'skip' (--on-nodata)")
+                    if on_nodata == "barrier":
+                        new = hit & (code < 0)
+                        if new.any():
+                            labels.append(f"no data in {source}")
+                            code[new] = len(labels) - 1
+            bad = ~np.isfinite(cost) & (code < 0)
+            if bad.any():
+                labels.append(f"cost term {tname!r} gave a non-finite cost")
+                code[bad] = len(labels) - 1
+            with np.errstate(invalid="ignore"):
+                total = total + np.where(np.isfinite(cost), cost, 0.0)
+            for k, v in out.items():
+                if k in ("cost", "nodata_m", "nodata_source"):
+                    continue
+                ctx.components[k] = np.asarray(v, dtype=np.float64)
+                if tname not in _BUILTIN or k.startswith("land_cost_"):
+                    extra_cols.append(k)
+        ctx.components["nodata_fraction"] = nodata_fraction
+        passable = code < 0
+        total[~passable] = np.inf
+        comps = {k: ctx.components[k] for k in BASE_COMPONENTS}
+        for k in extra_cols:
+            comps[k] = ctx.components[k]
+        labels_t = tuple(labels)
+        return LinkCosts(comps, total, passable, int((~passable).sum()),
+                         _count_reasons(code, labels_t), code, labels_t)
+    finally:
+        for s in opened:
+            s.close()
+
+
+def _check_output(tname, out, m, existing):
+    if not isinstance(out, dict) or "cost" not in out:
+        raise InputError(f"cost term {tname!r} must return a dict with a 'cost' array; "
+                         f"got {type(out).__name__}")
+    for k, v in out.items():
+        if k == "nodata_source":
+            continue
+        a = np.asarray(v)
+        if a.shape != (m,):
+            raise InputError(f"cost term {tname!r} returned {k!r} with shape {a.shape}; "
+                             f"expected ({m},), one value per link")
+        if k not in ("cost", "nodata_m") and k in existing:
+            raise InputError(f"cost term {tname!r} returned component {k!r}, which already "
+                             "exists; give it another name")
+
+
+def node_elevations(xy, terrain, *, working_crs=None, raster_crs=None):
+    """Terrain elevation at each site (bilinear; NaN outside or on nodata).
+
+    Parameters
+    ----------
+    xy : array_like of float, shape (n, 2)
+        Working-CRS points.
+    terrain : str, os.PathLike or Surface
+        A path needs ``working_crs``.
+    working_crs, raster_crs : CRS-like, optional
+
+    Returns
+    -------
+    ndarray of float64, shape (n,)
+    """
+    xy = np.asarray(xy, dtype=np.float64).reshape(-1, 2)
+    if isinstance(terrain, Surface):
+        return terrain.sample(xy)
+    if working_crs is None:
+        raise InputError("node_elevations needs working_crs= when terrain is a path")
+    with open_surface(terrain, working_crs=working_crs, raster_crs=raster_crs) as s:
+        return s.sample(xy)
+
+
+def sites_outside(xy, surface) -> np.ndarray:
+    """Boolean mask of the sites outside the raster extent of *surface* (a Surface)."""
+    if not isinstance(surface, Surface):
+        raise InputError(f"sites_outside needs an opened Surface; got {type(surface).__name__}")
+    return ~surface.contains(xy)
