@@ -6,6 +6,10 @@ Rules (documented choices):
 * A projected CRS in other linear units (feet, US survey feet, …) is used
   with the *same projection* but metre axes, so every coordinate and length
   inside mainspan is in metres; outputs are written in that metre variant.
+* A projected CRS whose point scale factor over the sites strays more than
+  :data:`MAX_SCALE_ERROR` (1 %) from 1 — Web Mercator away from the equator,
+  for example — is not fit for measuring mains; it is replaced like a
+  geographic CRS, and the reason says so.
 * A geographic CRS is replaced by the UTM zone holding the most sites (WGS 84
   UTM, EPSG 326zz north / 327zz south, the hemisphere of the median latitude;
   ties go to the zone of the median longitude).  The Norway and Svalbard
@@ -28,7 +32,10 @@ import pyproj
 from .errors import InputError
 
 __all__ = ["WorkingCRS", "choose_working_crs", "to_crs", "parse_crs", "scale_factor_range",
-           "utm_epsg"]
+           "utm_epsg", "MAX_SCALE_ERROR"]
+
+#: Largest departure of the grid scale factor from 1 accepted in an input CRS.
+MAX_SCALE_ERROR = 0.01
 
 
 @dataclass(frozen=True)
@@ -105,14 +112,23 @@ def choose_working_crs(source_crs, xy, *, crs=None) -> WorkingCRS:
             return WorkingCRS(_metre_variant(user), f"given by --crs, axes converted from "
                               f"{user.axis_info[0].unit_name} to metres")
         return WorkingCRS(user, "given by --crs")
+    distorted = ""
     if source_crs.is_projected:
+        try:
+            kmin, kmax = scale_factor_range(np.asarray(xy, float), source_crs)
+        except Exception:  # PROJ cannot give factors: trust the CRS
+            kmin = kmax = 1.0
+        if np.isfinite(kmin) and max(abs(kmin - 1), abs(kmax - 1)) > MAX_SCALE_ERROR:
+            distorted = (f"input CRS {source_crs.name!r} distorts lengths (scale factor "
+                         f"{kmin:.3f}–{kmax:.3f}); ")
+    if source_crs.is_projected and not distorted:
         f = _linear_factor(source_crs)
         if abs(f - 1.0) > 1e-12:
             return WorkingCRS(_metre_variant(source_crs),
                               f"input CRS with axes converted from "
                               f"{source_crs.axis_info[0].unit_name} to metres")
         return WorkingCRS(source_crs, "input CRS is projected in metres")
-    if not source_crs.is_geographic:
+    if not source_crs.is_geographic and not distorted:
         raise InputError(f"input CRS {source_crs.name!r} is neither projected nor geographic; "
                          "pass --crs with a metric projected CRS")
     lonlat = to_crs(np.asarray(xy, float), source_crs, pyproj.CRS("EPSG:4326"))
@@ -124,7 +140,7 @@ def choose_working_crs(source_crs, xy, *, crs=None) -> WorkingCRS:
     zone = med_zone if med_zone in best else int(best[0])
     epsg = (32600 if np.median(lat) >= 0 else 32700) + zone
     return WorkingCRS(pyproj.CRS.from_epsg(epsg),
-                      f"geographic input projected to UTM zone {zone}"
+                      f"{distorted}{'geographic ' if not distorted else ''}input projected to UTM zone {zone}"
                       f"{'N' if epsg < 32700 else 'S'} (holds {counts[zone]} of {len(lon)} sites)")
 
 
@@ -159,9 +175,9 @@ def scale_factor_range(xy, crs) -> tuple[float, float]:
         return (1.0, 1.0)
     xy = np.asarray(xy, float)
     geo = crs.geodetic_crs
-    lonlat = to_crs(xy, crs, geo)
+    lonlat = to_crs(xy * _linear_factor(crs) / _linear_factor(crs), crs, geo)
     proj = pyproj.Proj(crs)
-    f = proj.get_factors(lonlat[:, 0], lonlat[:, 1])
+    f = proj.get_factors(lonlat[:, 0], lonlat[:, 1], errcheck=False)
     k = np.asarray(f.meridional_scale, float)
     k = k[np.isfinite(k)]
     if k.size == 0:
