@@ -1,0 +1,178 @@
+"""CSV tables of a layout: the links and the bill of quantities.
+
+Floats are written with a fixed number of decimals chosen from the unit in the
+column name (``_m`` → mm resolution, ``_mm`` → 0.1 mm, costs → cents, …), so
+the same layout always gives the same bytes and a diff between two runs shows
+only real changes.  Missing values (NaN) are written as empty cells.
+
+The small file-safety helpers here (:func:`check_target`, :func:`atomic_write`)
+are shared by every mainspan writer: output goes to a temporary file in the
+target's folder and is moved into place with :func:`os.replace`, so a failed
+write never leaves half a file, and an existing file is only replaced when
+``overwrite=True``.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import os
+import tempfile
+
+import numpy as np
+
+from ..errors import DataFileError, InputError, OverwriteError
+
+__all__ = ["write_links_csv", "write_quantities_csv", "format_value", "check_target",
+           "atomic_write"]
+
+# decimals by column-name suffix (first match wins); the rest use 6 significant digits
+_DECIMALS = (("_lps", 3), ("_mps", 3), ("_pct", 3), ("_mm", 1), ("_m", 3),
+             ("cost", 2), ("_kpa", 1))
+
+
+# --------------------------------------------------------------------------- file safety
+def check_target(path, *, overwrite=False, what="output"):
+    """Validate an output path; refuse an existing file unless ``overwrite``.
+
+    Returns the path as ``str``.
+    """
+    path = os.fspath(path)
+    folder = os.path.dirname(os.path.abspath(path))
+    if not os.path.isdir(folder):
+        raise DataFileError(f"{what} {path!r}: folder {folder!r} does not exist; "
+                            "create it first or choose another path")
+    if os.path.isdir(path):
+        raise DataFileError(f"{what} {path!r} is a folder; give a file name")
+    if os.path.exists(path) and not overwrite:
+        raise OverwriteError(f"{what} {path!r} already exists; pass --overwrite "
+                             "(overwrite=True) to replace it")
+    return path
+
+
+def atomic_write(path, data, *, overwrite=False, what="output"):
+    """Write ``data`` (bytes or str, UTF-8) to ``path`` via a temp file + ``os.replace``."""
+    path = check_target(path, overwrite=overwrite, what=what)
+    if isinstance(data, str):
+        data = data.encode("utf-8")
+    folder = os.path.dirname(os.path.abspath(path))
+    fd, tmp = tempfile.mkstemp(prefix=".mainspan-", suffix=".tmp", dir=folder)
+    try:
+        with os.fdopen(fd, "wb") as f:
+            f.write(data)
+        os.chmod(tmp, 0o644)
+        os.replace(tmp, path)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+    return path
+
+
+# --------------------------------------------------------------------------- formatting
+def _decimals(name):
+    for suffix, d in _DECIMALS:
+        if name.endswith(suffix) or (suffix == "cost" and "cost" in name):
+            return d
+    return None
+
+
+def format_value(v, name=""):
+    """One cell as text: fixed decimals by unit suffix of ``name``; NaN → ``""``."""
+    if v is None:
+        return ""
+    if isinstance(v, (bool, np.bool_)):
+        return "true" if v else "false"
+    if isinstance(v, (int, np.integer)):
+        return str(int(v))
+    if isinstance(v, (float, np.floating)):
+        f = float(v)
+        if not np.isfinite(f):
+            return "" if np.isnan(f) else ("inf" if f > 0 else "-inf")
+        d = _decimals(name)
+        if d is None:
+            s = f"{f:.6g}"
+        else:
+            s = f"{f:.{d}f}"
+        # no "-0.000": a value that rounds to zero is written unsigned
+        return s[1:] if s.startswith("-") and float(s) == 0 else s
+    return str(v)
+
+
+def _rows(columns: dict):
+    names = list(columns)
+    cols = [np.asarray(columns[k]) for k in names]
+    n = len(cols[0]) if cols else 0
+    for k, c in zip(names, cols):
+        if c.ndim != 1 or len(c) != n:
+            raise InputError(f"table column {k!r} has shape {c.shape}, expected ({n},); "
+                             "the layout is damaged")
+    yield names
+    for i in range(n):
+        yield [format_value(c[i].item() if hasattr(c[i], "item") else c[i], k)
+               for k, c in zip(names, cols)]
+
+
+def _csv_text(columns: dict) -> str:
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    for row in _rows(columns):
+        w.writerow(row)
+    return buf.getvalue()
+
+
+# --------------------------------------------------------------------------- writers
+def write_links_csv(layout, path, *, overwrite=False):
+    """Write the ``links`` table to CSV, one row per link in grow order.
+
+    Every link column of the layout is written in its own order, followed by
+    the plan coordinates of both ends (``from_x_m``, ``from_y_m``, ``to_x_m``,
+    ``to_y_m``) in the working CRS.
+
+    Parameters
+    ----------
+    layout : mainspan.layout.Layout
+    path : str or os.PathLike
+        Target ``.csv`` file.
+    overwrite : bool, default False
+        Replace an existing file; otherwise :class:`mainspan.errors.OverwriteError`.
+
+    Returns
+    -------
+    str
+        The path written.
+    """
+    cols = {k: v for k, v in layout.links.items()}
+    xy = np.asarray(layout.node_xy, float)[np.asarray(layout.link_ends, np.int64)]
+    xy = xy.reshape(-1, 2, 2)
+    for name, (e, a) in {"from_x_m": (0, 0), "from_y_m": (0, 1),
+                         "to_x_m": (1, 0), "to_y_m": (1, 1)}.items():
+        if name not in cols:
+            cols[name] = xy[:, e, a]
+    return atomic_write(path, _csv_text(cols), overwrite=overwrite, what="links CSV")
+
+
+def write_quantities_csv(layout, path, *, overwrite=False):
+    """Write the bill of quantities (``layout.tables["quantities"]``) to CSV.
+
+    Parameters
+    ----------
+    layout : mainspan.layout.Layout
+    path : str or os.PathLike
+    overwrite : bool, default False
+
+    Returns
+    -------
+    str
+        The path written.
+
+    Raises
+    ------
+    mainspan.errors.InputError
+        When the layout has no quantities table (it was planned without a system).
+    """
+    q = layout.tables.get("quantities")
+    if not q:
+        raise InputError("layout has no 'quantities' table (pipes were not sized); "
+                         "plan with a system (pressure or gravity) to get a bill of quantities")
+    return atomic_write(path, _csv_text(dict(q)), overwrite=overwrite, what="quantities CSV")
