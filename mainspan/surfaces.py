@@ -153,6 +153,8 @@ def _traverse_segments(x0, y0, x1, y1, scale, owner, w, h, bounds,
     for i in range(n):
         o = owner[i]
         L = scale[i]
+        if not L > 0.0:  # a point: nothing to integrate
+            continue
         ta, tb = _clip_box(x0[i], y0[i], x1[i], y1[i], w, h)
         if tb <= ta:
             outside[o] += L
