@@ -19,7 +19,7 @@ import numpy as np
 import pyproj
 
 from ._version import __version__
-from .errors import CertificateError, InputError
+from .errors import CertificateError, DisconnectedError, InputError
 
 __all__ = ["Layout", "plan_layout", "read_layout", "file_sha256"]
 
@@ -358,6 +358,11 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
     elif isinstance(weights, dict):
         weights = CostWeights(**weights)
 
+    if roots is not None and len(roots):
+        root_idx = sites.index_of(roots)
+    else:
+        root_idx = sites.default_roots()
+
     say("candidates", 0, 1)
     cands = build_candidates(sites.xy, candidates, k=k, max_link_m=max_link_m,
                              max_complete_nodes=max_complete_nodes)
@@ -371,11 +376,6 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
                         sample_spacing_m=sample_spacing_m, raster_crs=raster_crs,
                         progress=(lambda d, t: say("costs", d, t)))
     say("costs", 1, 1)
-
-    if roots is not None and len(roots):
-        root_idx = sites.index_of(roots)
-    else:
-        root_idx = sites.default_roots()
 
     # Node elevations: DEM, or the sites' own Z when asked (and where given).
     elev = np.full(n, np.nan)
@@ -407,7 +407,11 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
         cert = None
     else:
         sub_edges = edges[keep]
-        tree_k = prim_tree(n, sub_edges, w_all[keep], roots=root_idx, allow_forest=allow_forest)
+        try:
+            tree_k = prim_tree(n, sub_edges, w_all[keep], roots=root_idx,
+                               allow_forest=allow_forest)
+        except DisconnectedError as exc:
+            raise _disconnected_message(sites, exc, int((~passable).sum())) from None
         cert = certify_tree(n, sub_edges, w_all[keep], tree_k)
         if not cert.ok:
             raise CertificateError(
@@ -535,6 +539,24 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
     lay.run_info = info
     lay.elapsed_s = time.perf_counter() - t0
     return lay
+
+
+def _disconnected_message(sites, exc, n_impassable):
+    lab = getattr(exc, "components", None)
+    if lab is None:
+        return exc
+    lab = np.asarray(lab)
+    sizes = np.bincount(lab)
+    parts = []
+    for c in np.argsort(-sizes, kind="stable")[:4]:
+        ids = sites.node_id[lab == c][:3].astype(str)
+        parts.append(f"{sizes[c]} site(s) [{', '.join(ids)}{' …' if sizes[c] > 3 else ''}]")
+    more = f" and {len(sizes) - 4} more" if len(sizes) > 4 else ""
+    why = f" ({n_impassable} impassable links were dropped)" if n_impassable else ""
+    return DisconnectedError(
+        f"the candidate links split the sites into {len(sizes)} unconnected parts{why}: "
+        f"{'; '.join(parts)}{more}; use a larger --k or --max-link-m, --candidates "
+        "delaunay+knn, or --allow-forest for one tree per part", components=lab)
 
 
 def _fmt_dataclass(obj):
