@@ -1,0 +1,1096 @@
+"""Run the scenarios of a project and compare their layouts.
+
+:func:`run_scenarios` plans the base and every ``[scenarios.NAME]`` of a
+project file, doing work that scenarios share only once:
+
+* sites are read once per distinct ``[sites]`` section (and working CRS);
+* candidate links are built once per distinct candidate setting;
+* each raster is opened once and kept open for the whole run (small rasters
+  are then read from disk once, large ones tile by tile through the
+  surface's own cache);
+* the terrain components (surface length, climb, descent, steep length,
+  end elevations) are priced once per candidate set, terrain raster, raster
+  CRS, sample spacing, nodata policy and steep-slope threshold;
+* the land-cost components are priced once per candidate set, land-cost
+  raster set, cost expression, class table, raster CRS and nodata policy;
+* each scenario's weights then combine the components into link totals by
+  the cost model's formula (see :func:`combine_costs`), without touching a
+  raster.
+
+Prim's tree, its optimality certificate and the pipe design then run per
+scenario with the same stage functions :func:`mainspan.plan_layout` uses.
+Link ids are stable across scenarios that share a candidate set: the
+``candidate_index`` of a link is its row in that set.
+
+Comparison
+----------
+``scenario_summary``
+    One row per scenario: totals, the cost split by term, the number of
+    links, the Jaccard share of links with the base, links added / removed
+    against the base, failed design checks, and the *regret matrix*: column
+    ``cost_under_<S>`` holds the cost of this row's layout priced with
+    scenario S's link costs (undirected link totals).  On a shared candidate
+    set the diagonal is each column's minimum, because each tree is minimum
+    under its own costs.
+``scenario_links``
+    One LineString per link (node pair): ``presence`` is ``all``, ``some``
+    or ``none`` of the layouts, ``scenarios`` lists them, ``n_scenarios``
+    counts them, ``stability`` is the share of all perturbed runs (over every
+    scenario) whose tree holds the link.  All candidate links are written
+    when the candidate sets hold at most :data:`ALL_CANDIDATES_MAX` distinct
+    links; above that only links in at least one layout are written and the
+    summary's ``n_candidates_in_none`` says how many were left out.
+
+Stability
+---------
+With ``stability_runs = N`` each scenario's tree is grown N more times with
+its land-cost component multiplied, link by link, by an independent factor
+drawn uniformly from ``[1 - p/100, 1 + p/100]`` (``p = perturb_pct``; a
+seeded :func:`numpy.random.default_rng`, one stream per scenario name so
+adding a scenario does not change the others).  A factor per link, not per
+raster cell, keeps a run to one vectorised recombination and one Prim call;
+it models uncertainty in the price of a whole link rather than spatially
+correlated error.  ``stability`` in ``links_<scenario>`` is the share of
+that scenario's runs whose tree holds the link.
+
+References
+----------
+.. [1] R. C. Prim, "Shortest connection networks and some generalizations",
+   Bell System Technical Journal 36(6):1389-1401, 1957.
+.. [2] J. Kleinberg and É. Tardos, *Algorithm Design*, Pearson, 2006, ch. 4
+   (the cut and cycle properties; a minimum spanning tree depends only on
+   the order of the link costs).
+.. [3] P. Jaccard, "The distribution of the flora in the alpine zone",
+   New Phytologist 11(2):37-50, 1912 (the share |A ∩ B| / |A ∪ B|).
+"""
+
+from __future__ import annotations
+
+import base64
+import html
+import json
+import os
+import sys
+import zlib
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .errors import CertificateError, InputError
+
+__all__ = ["ScenarioResult", "ScenarioSet", "run_scenarios", "write_scenarios", "difference",
+           "combine_costs", "compare_cli", "ALL_CANDIDATES_MAX"]
+
+#: Up to this many distinct candidate links, ``scenario_links`` holds every candidate.
+ALL_CANDIDATES_MAX = 200_000
+
+#: Weighted cost terms, as (summary column, component, weight name).
+COST_TERMS = (("cost_length", "surface_length_m", "length"), ("cost_land", "land_cost", "land"),
+              ("cost_climb", "climb_m", "climb"), ("cost_descent", "descent_m", "descent"),
+              ("cost_steep", "steep_length_m", "steep_per_m"))
+
+_TERRAIN_COLS = ("length_m", "surface_length_m", "climb_m", "descent_m", "max_slope_pct",
+                 "steep_length_m", "z_from_m", "z_to_m")
+
+
+# ------------------------------------------------------------------------------ results
+@dataclass
+class ScenarioResult:
+    """One planned scenario.
+
+    Attributes
+    ----------
+    name, description : str
+    settings : dict
+        The merged project settings of the scenario.
+    layout : Layout
+    weights : CostWeights
+    stability : ndarray of float64 or None
+        Per candidate link, the share of perturbed runs whose tree holds it.
+    runs : int
+        Number of perturbed runs made.
+    """
+
+    name: str
+    description: str
+    settings: dict
+    layout: object
+    weights: object
+    keys: dict = field(repr=False, default_factory=dict)
+    stability: np.ndarray | None = None
+    runs: int = 0
+
+
+@dataclass
+class ScenarioSet:
+    """The layouts of a project's scenarios and their comparison.
+
+    Attributes
+    ----------
+    names : list of str
+        ``"base"`` first, then the scenarios in project order.
+    results : dict of str -> ScenarioResult
+    summary : dict of str -> ndarray
+        Columns of the ``scenario_summary`` table, one row per name.
+    regret : ndarray of float64, shape (k, k)
+        ``regret[i, j]``: cost of layout ``names[i]`` under ``names[j]``'s
+        link costs (NaN where the two scenarios have different sites).
+    links : dict of str -> ndarray
+        Columns of the ``scenario_links`` layer; ``links_xy`` (q, 2, 2) holds
+        the end coordinates.
+    work : dict of str -> int
+        How often each shared stage ran (sites reads, candidate builds,
+        terrain pricings, land pricings).
+    """
+
+    names: list
+    results: dict
+    summary: dict
+    regret: np.ndarray
+    links: dict
+    links_xy: np.ndarray
+    crs: object
+    work: dict
+    stability_runs: int = 0
+    perturb_pct: float = 0.0
+    seed: int = 0
+
+    def __getitem__(self, name):
+        return self.results[name].layout
+
+    def __iter__(self):
+        return iter(self.names)
+
+    def table(self) -> str:
+        """The comparison as fixed-width text (one screen for a handful of scenarios)."""
+        return format_table(self)
+
+
+# ------------------------------------------------------------------------------ costs
+def combine_costs(terrain, land, weights, *, land_factor=None):
+    """Combine priced terrain and land components into link totals with *weights*.
+
+    The cost model of :func:`mainspan.costs.price_links` is applied term by
+    term, in the same order, so the totals equal a direct ``price_links`` call
+    to the last bit::
+
+        total = fixed + (climb·climb_m + descent·descent_m + steep_per_m·steep_length_m)
+                      + land·land_cost + length·surface_length_m
+
+    with ``inf`` for links that are impassable in either part or whose
+    weighted term is not finite.  (``costs.py`` has no separate combining
+    function, so the formula lives here.)
+
+    Parameters
+    ----------
+    terrain : LinkCosts
+        From ``price_links`` with the terrain only (land weights irrelevant).
+    land : LinkCosts
+        From ``price_links`` with the land-cost rasters only, same links.
+    weights : CostWeights
+    land_factor : ndarray of float64, shape (m,), optional
+        Multiplies the land component link by link (stability runs).
+
+    Returns
+    -------
+    LinkCosts
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from mainspan.costs import CostWeights, price_links
+    >>> xy, e = np.array([[0.0, 0.0], [3.0, 4.0]]), np.array([[0, 1]])
+    >>> t = price_links(xy, e, working_crs="EPSG:32633")
+    >>> combine_costs(t, t, CostWeights(length=2.0, fixed=1.0)).total.tolist()
+    [11.0]
+    """
+    from .costs import BASE_COMPONENTS, LinkCosts
+
+    w = weights
+    tc, lc = terrain.components, land.components
+    m = len(terrain)
+    land_cost = lc["land_cost"] if land_factor is None else lc["land_cost"] * land_factor
+    t_cost = w.climb * tc["climb_m"] + w.descent * tc["descent_m"]
+    if w.steep_per_m:
+        t_cost = t_cost + w.steep_per_m * tc["steep_length_m"]
+    l_cost = w.land * land_cost
+    code = np.full(m, -1, np.int16)
+    labels: list[str] = []
+
+    def flag(mask, label):
+        new = mask & (code < 0)
+        if new.any():
+            labels.append(label)
+            code[new] = len(labels) - 1
+
+    for part, bad_label in ((terrain, "cost term 'terrain' gave a non-finite cost"),
+                            (land, "cost term 'land' gave a non-finite cost")):
+        for j, lab in enumerate(part.reason_labels):
+            flag(part.reason_code == j, lab)
+        flag(~np.isfinite(t_cost if part is terrain else l_cost), bad_label)
+    total = np.full(m, w.fixed)
+    with np.errstate(invalid="ignore"):
+        total = total + np.where(np.isfinite(t_cost), t_cost, 0.0)
+        total = total + np.where(np.isfinite(l_cost), l_cost, 0.0)
+    total = total + w.length * tc["surface_length_m"]
+    passable = code < 0
+    total[~passable] = np.inf
+    comps = {}
+    for k in BASE_COMPONENTS:
+        if k == "land_cost":
+            comps[k] = land_cost
+        elif k == "nodata_fraction":
+            comps[k] = np.maximum(tc[k], lc[k])
+        else:
+            comps[k] = tc[k]
+    for k, v in lc.items():
+        if k not in comps:
+            comps[k] = v if land_factor is None else v * land_factor
+    labels_t = tuple(labels)
+    counts = np.bincount(code[code >= 0], minlength=len(labels_t))
+    return LinkCosts(comps, total, passable, int((~passable).sum()),
+                     {labels_t[i]: int(c) for i, c in enumerate(counts) if c}, code, labels_t)
+
+
+def _key(*parts):
+    return json.dumps(parts, sort_keys=True, default=str)
+
+
+class _Workbench:
+    """Caches of the stages scenarios share (sites, candidates, surfaces, components)."""
+
+    def __init__(self, say):
+        self.say = say
+        self.sites, self.cands, self.surfaces, self.terrain, self.land, self.elev = \
+            {}, {}, {}, {}, {}, {}
+        self.work = {"sites_reads": 0, "candidate_builds": 0, "terrain_pricings": 0,
+                     "land_pricings": 0, "raster_opens": 0}
+
+    def close(self):
+        for s in self.surfaces.values():
+            s.close()
+        self.surfaces.clear()
+
+    # sites ---------------------------------------------------------------
+    def get_sites(self, path, read_kw):
+        from .sites import read_sites
+
+        k = _key(path, read_kw)
+        if k not in self.sites:
+            self.say("sites", 0, 1)
+            self.sites[k] = read_sites(path, **read_kw)
+            self.work["sites_reads"] += 1
+        return k, self.sites[k]
+
+    # candidates ----------------------------------------------------------
+    def get_candidates(self, sites_key, sites, plan):
+        from .candidates import build_candidates
+
+        opts = dict(method=plan.get("candidates", "delaunay"), k=plan.get("k", 8),
+                    max_link_m=plan.get("max_link_m"),
+                    max_complete_nodes=plan.get("max_complete_nodes", 5000))
+        k = _key(sites_key, opts)
+        if k not in self.cands:
+            self.say("candidates", 0, 1)
+            method = opts.pop("method")
+            self.cands[k] = build_candidates(sites.xy, method, **opts)
+            self.work["candidate_builds"] += 1
+        return k, self.cands[k]
+
+    # rasters -------------------------------------------------------------
+    def surface(self, path, *, crs, raster_crs, name):
+        from .surfaces import open_surface
+
+        k = _key(os.fspath(path), crs.to_wkt(), raster_crs, name)
+        if k not in self.surfaces:
+            self.surfaces[k] = open_surface(path, working_crs=crs, raster_crs=raster_crs,
+                                            name=name)
+            self.work["raster_opens"] += 1
+        return self.surfaces[k]
+
+    def terrain_parts(self, edge_key, xy, edges, sites, plan, weights):
+        """Terrain components of *edges* (priced once per terrain setting)."""
+        from .costs import CostWeights, price_links
+
+        terrain = plan.get("terrain")
+        opts = dict(terrain=None if terrain is None else os.fspath(terrain),
+                    raster_crs=plan.get("raster_crs"), spacing=plan.get("sample_spacing_m"),
+                    on_nodata=plan.get("on_nodata", "barrier"),
+                    steep=weights.steep_slope_pct if terrain is not None else None)
+        k = _key(edge_key, opts)
+        if k not in self.terrain:
+            surf = None
+            if terrain is not None:
+                self.say("terrain", 0, 1)
+                surf = self.surface(terrain, crs=sites.crs, raster_crs=opts["raster_crs"],
+                                    name="terrain")
+                self.work["terrain_pricings"] += 1
+            self.terrain[k] = price_links(
+                xy, edges, working_crs=sites.crs, terrain=surf,
+                weights=CostWeights(length=0.0, land=0.0, steep_slope_pct=opts["steep"]),
+                on_nodata=opts["on_nodata"], sample_spacing_m=opts["spacing"],
+                raster_crs=opts["raster_crs"])
+        return self.terrain[k]
+
+    def land_parts(self, edge_key, xy, edges, sites, plan):
+        """Land-cost components of *edges* (priced once per land-cost setting)."""
+        from .costs import CostWeights, price_links
+
+        land = plan.get("land_cost")
+        named = isinstance(land, dict)
+        paths = None if land is None else (
+            {n: os.fspath(p) for n, p in land.items()} if named else os.fspath(land))
+        opts = dict(land=paths, expr=plan.get("cost_expression"),
+                    classes=plan.get("class_costs"), raster_crs=plan.get("raster_crs"),
+                    on_nodata=plan.get("on_nodata", "barrier"))
+        k = _key(edge_key, opts)
+        if k not in self.land:
+            src = None
+            if land is not None:
+                self.say("land cost", 0, 1)
+                items = paths.items() if named else [("land_cost", paths)]
+                opened = {n: self.surface(p, crs=sites.crs, raster_crs=opts["raster_crs"],
+                                          name=n) for n, p in items}
+                src = opened if named else opened["land_cost"]
+                self.work["land_pricings"] += 1
+            self.land[k] = price_links(
+                xy, edges, working_crs=sites.crs, land_cost=src, cost_expression=opts["expr"],
+                class_costs=opts["classes"], weights=CostWeights(length=0.0, land=1.0),
+                on_nodata=opts["on_nodata"], raster_crs=opts["raster_crs"])
+        return self.land[k]
+
+    def elevations(self, sites_key, sites, plan):
+        terrain = plan.get("terrain")
+        if terrain is None:
+            return np.full(sites.n, np.nan)
+        k = _key(sites_key, os.fspath(terrain), plan.get("raster_crs"))
+        if k not in self.elev:
+            surf = self.surface(terrain, crs=sites.crs, raster_crs=plan.get("raster_crs"),
+                                name="terrain")
+            self.elev[k] = surf.sample(sites.xy)
+        return self.elev[k].copy()
+
+
+# ------------------------------------------------------------------------------ layouts
+def _weights(plan):
+    from .costs import OPTION_NAMES, CostWeights
+
+    w = plan.get("weights")
+    w = CostWeights() if w is None else (w if isinstance(w, CostWeights) else CostWeights(**w))
+    if plan.get("terrain") is None and (w.climb or w.descent or w.steep_per_m):
+        opt = next(OPTION_NAMES[k] for k in ("climb", "descent", "steep_per_m") if getattr(w, k))
+        raise InputError(f"{opt} prices the terrain but no terrain raster was given; "
+                         "pass terrain= (--terrain)")
+    return w
+
+
+def _node_elevations(bench, sites_key, sites, plan):
+    """Node elevations as plan_layout sets them (DEM, or the sites' Z when asked)."""
+    use_site_z = plan.get("use_site_z", False)
+    elev = bench.elevations(sites_key, sites, plan)
+    if plan.get("terrain") is not None:
+        outside = ~np.isfinite(elev)
+        if use_site_z:
+            has = np.isfinite(sites.elevation)
+            elev = np.where(has, sites.elevation, elev)
+            outside &= ~has
+        if outside.any():
+            ids = [str(v) for v in sites.node_id[outside]]
+            raise InputError(
+                f"{len(ids)} site(s) lie outside the terrain raster or on nodata: "
+                f"{', '.join(ids[:8])}{' …' if len(ids) > 8 else ''}; extend the DEM, remove "
+                "those sites, or give their Z with use_site_z")
+    elif use_site_z:
+        elev = sites.elevation.copy()
+    return elev
+
+
+def _grow(sites, edges, costs, elev, root_idx, plan, *, certify=True):
+    """Tree over the passable candidates: Prim (+ certificate) or the gravity arborescence."""
+    from .layout import _gravity_tree, _remap_tree
+    from .spanning import certify_tree, prim_tree
+
+    keep = np.flatnonzero(np.asarray(costs.passable, bool))
+    w_all = np.asarray(costs.total, float)
+    if plan.get("layout", "tree") == "gravity":
+        tree, directed = _gravity_tree(sites, edges, keep, w_all, costs, elev, root_idx,
+                                       plan.get("design"))
+        return tree, None, directed
+    sub = edges[keep]
+    tree_k = prim_tree(sites.n, sub, w_all[keep], roots=root_idx,
+                       allow_forest=plan.get("allow_forest", False))
+    cert = None
+    if certify:
+        cert = certify_tree(sites.n, sub, w_all[keep], tree_k)
+        if not cert.ok:
+            raise CertificateError(
+                f"optimality certificate failed at candidate link {cert.violating_edge}: the "
+                "tree is not minimum over the candidates; this is a bug, please report it")
+    return _remap_tree(tree_k, keep), cert, None
+
+
+def _tree_links(tree):
+    """Candidate indices of a tree's links, in grow order."""
+    order = np.asarray(tree.order, dtype=np.int64)
+    child = order[tree.parent[order] >= 0]
+    return child, tree.parent[child], tree.parent_edge[child]
+
+
+def _assemble(bench, sites, cands, costs, elev, plan, *, name, description):
+    """A Layout from shared stages, with the links/nodes of :func:`plan_layout`."""
+    from ._version import __version__
+    from .layout import Layout, Profiles, _design, _fmt_dataclass, _inputs_info, _path_sums, _scale
+
+    n = sites.n
+    edges = cands.edges
+    system, layout_kind = plan.get("system"), plan.get("layout", "tree")
+    if layout_kind not in ("tree", "gravity"):
+        raise InputError(f"[tree] layout: must be 'tree' or 'gravity', got {layout_kind!r}")
+    if system not in (None, "pressure", "gravity"):
+        raise InputError(f"[design] system: must be 'pressure' or 'gravity', got {system!r}")
+    roots = plan.get("roots")
+    root_idx = sites.index_of(roots) if roots else sites.default_roots()
+    tree, cert, directed = _grow(sites, edges, costs, elev, root_idx, plan)
+    child, parent, eidx = _tree_links(tree)
+    L = len(child)
+    flip = edges[eidx, 0] != parent
+    comp = costs.components
+    links = {"link_id": np.arange(1, L + 1, dtype=np.int64),
+             "from_node": sites.node_id[parent].astype(str),
+             "to_node": sites.node_id[child].astype(str),
+             "grow_order": np.arange(1, L + 1, dtype=np.int64),
+             "candidate_index": eidx.astype(np.int64)}
+    for k, arr in comp.items():
+        links[k] = np.asarray(arr)[eidx]
+    links["z_from_m"] = np.where(flip, links["z_to_m"], links["z_from_m"])
+    links["z_to_m"] = np.where(flip, comp["z_from_m"][eidx], comp["z_to_m"][eidx])
+    if plan.get("terrain") is not None:
+        links["z_from_m"], links["z_to_m"] = elev[parent], elev[child]
+    links["climb_m"] = np.where(flip, comp["descent_m"][eidx], comp["climb_m"][eidx])
+    links["descent_m"] = np.where(flip, comp["climb_m"][eidx], comp["descent_m"][eidx])
+    links["cost"] = (np.asarray(costs.total, float)[eidx] if directed is None
+                     else directed["cost"][child])
+    link_of_node = np.full(n, -1, dtype=np.int64)
+    link_of_node[child] = np.arange(L)
+    hops, cost_to_root = _path_sums(tree.parent, np.asarray(tree.order, np.int64),
+                                    link_of_node, links["cost"])
+    nodes = {"node_id": sites.node_id.astype(str), "role": sites.role.astype(str),
+             "demand_lps": sites.demand.astype(float), "elevation_m": elev,
+             "parent_node": np.where(tree.parent >= 0,
+                                     sites.node_id[np.maximum(tree.parent, 0)], "").astype(str),
+             "hops_to_root": hops, "cost_to_root": cost_to_root}
+    profiles = None
+    if plan.get("terrain") is not None and L:
+        surf = bench.surface(plan["terrain"], crs=sites.crs, raster_crs=plan.get("raster_crs"),
+                             name="terrain")
+        off, st, z = surf.profiles(sites.xy[parent], sites.xy[child],
+                                   spacing_m=plan.get("sample_spacing_m"))
+        profiles = Profiles(np.asarray(off, np.int64), np.asarray(st, float),
+                            np.asarray(z, float))
+    lay = Layout(crs=sites.crs, nodes=nodes, node_xy=sites.xy.copy(), links=links,
+                 link_ends=np.column_stack([parent, child]).astype(np.int64), profiles=profiles,
+                 sites=sites, candidates=cands, costs=costs, tree=tree, certificate=cert)
+    if system is not None:
+        _design(lay, system, plan.get("design"), tree)
+    land = plan.get("land_cost")
+    land = land if isinstance(land, dict) else ({} if land is None else {"land_cost": land})
+    lay.run_info = {
+        "tool": "mainspan", "version": __version__, "scenario": name,
+        "scenario_description": description, "working_crs": sites.crs.name,
+        "working_crs_epsg": str(sites.crs.to_epsg() or ""), "sites": str(sites.path or ""),
+        "n_sites": str(n), "candidates": str(cands.method), "n_candidates": str(len(edges)),
+        "n_impassable": str(int(costs.n_impassable)),
+        "terrain": "" if plan.get("terrain") is None else os.fspath(plan["terrain"]),
+        "land_cost": "; ".join(f"{k}={os.fspath(v)}" for k, v in land.items()),
+        "cost_expression": plan.get("cost_expression") or "",
+        "on_nodata": plan.get("on_nodata", "barrier"), "weights": _fmt_dataclass(_weights(plan)),
+        "roots": ", ".join(sites.node_id[np.asarray(tree.roots, np.int64)].astype(str)),
+        "n_roots": str(len(tree.roots)), "layout": layout_kind, "system": system or "",
+        "n_links": str(L), "total_length_m": f"{lay.total('length_m'):.3f}",
+        "total_cost": f"{lay.total('cost'):.3f}",
+        "certificate": ("cycle property holds for all "
+                        f"{cert.n_checked} non-tree candidates (min margin "
+                        f"{cert.worst_margin:.6g})" if cert is not None else
+                        "not applicable (directed arborescence; optimality by Edmonds)"),
+        "certificate_ok": "" if cert is None else str(bool(cert.ok)).lower(),
+    }
+    kmin, kmax = _scale(sites)
+    lay.run_info.update({"working_crs_reason": sites.crs_reason,
+                         "working_crs_wkt": sites.crs.to_wkt(),
+                         "grid_scale_factor_min": f"{kmin:.8f}",
+                         "grid_scale_factor_max": f"{kmax:.8f}"})
+    lay.run_info.update(_inputs_info([("sites", sites.path), ("terrain", plan.get("terrain")),
+                                      *land.items()]))
+    if lay.design is not None:
+        for k, v in getattr(lay.design, "summary", {}).items():
+            lay.run_info[f"design:{k}"] = str(v)
+    return lay, root_idx
+
+
+def _stability(sites, edges, terrain, land, weights, elev, root_idx, plan, *, runs, pct, rng):
+    """Share of *runs* perturbed trees holding each candidate link."""
+    count = np.zeros(len(edges), dtype=np.int64)
+    for _ in range(runs):
+        f = rng.uniform(1.0 - pct / 100.0, 1.0 + pct / 100.0, len(edges))
+        costs = combine_costs(terrain, land, weights, land_factor=f)
+        tree, _, _ = _grow(sites, edges, costs, elev, root_idx, plan, certify=False)
+        count[_tree_links(tree)[2]] += 1
+    return count / float(runs)
+
+
+# ------------------------------------------------------------------------------ run
+def run_scenarios(project, *, names=None, progress=None, stability_runs=0, perturb_pct=10.0,
+                  seed=0):
+    """Plan the base and the scenarios of a project, sharing work between them.
+
+    Parameters
+    ----------
+    project : Project or path
+        From :func:`mainspan.project.load_project`, or the TOML path.
+    names : sequence of str, optional
+        Scenarios to run (default: all); the base always runs first.
+    progress : callable, optional
+        ``progress(stage, done, total)``.
+    stability_runs : int, default=0
+        Perturbed runs per scenario (see the module notes); 0 switches them off.
+    perturb_pct : float, default=10.0
+        Half-width in percent of the uniform land-cost factor.
+    seed : int, default=0
+
+    Returns
+    -------
+    ScenarioSet
+
+    Raises
+    ------
+    InputError
+        An unknown scenario name, bad settings in any scenario.
+    """
+    from .project import Project, load_project, plan_kwargs
+
+    if not isinstance(project, Project):
+        project = load_project(project)
+    if isinstance(stability_runs, bool) or not isinstance(stability_runs, (int, np.integer)) \
+            or stability_runs < 0:
+        raise InputError(f"stability runs (--stability) must be an integer >= 0; got "
+                         f"{stability_runs!r}")
+    if not (isinstance(perturb_pct, (int, float)) and 0 <= perturb_pct < 100):
+        raise InputError(f"perturb_pct (--perturb-pct) must be a percentage in [0, 100); got "
+                         f"{perturb_pct!r}")
+    if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0:
+        raise InputError(f"seed (--seed) must be an integer >= 0; got {seed!r}")
+    wanted = list(project.scenarios) if names is None else [n for n in names if n != "base"]
+    for n in wanted:
+        project.settings_for(n)        # an unknown name is an InputError listing the valid ones
+    order = ["base", *dict.fromkeys(wanted)]
+    say = progress or (lambda *a: None)
+    bench = _Workbench(say)
+    results = {}
+    try:
+        for i, name in enumerate(order):
+            settings = project.settings_for(name)
+            desc = "" if name == "base" else project.scenarios[name].get("description", "")
+            _check_design_keys(settings, name)
+            path, read_kw, plan, _ = plan_kwargs(settings)
+            weights = _weights(plan)
+            sk, sites = bench.get_sites(path, read_kw)
+            ck, cands = bench.get_candidates(sk, sites, plan)
+            terr = bench.terrain_parts(ck, sites.xy, cands.edges, sites, plan, weights)
+            land = bench.land_parts(ck, sites.xy, cands.edges, sites, plan)
+            costs = combine_costs(terr, land, weights)
+            elev = _node_elevations(bench, sk, sites, plan)
+            say(f"tree {name}", 0, 1)
+            lay, root_idx = _assemble(bench, sites, cands, costs, elev, plan, name=name,
+                                      description=desc)
+            res = ScenarioResult(name, desc, settings, lay, weights,
+                                 keys={"sites": sk, "candidates": ck, "plan": plan})
+            if stability_runs:
+                say(f"stability {name}", 0, stability_runs)
+                rng = np.random.default_rng([int(seed), zlib.crc32(name.encode())])
+                res.stability = _stability(sites, cands.edges, terr, land, weights, elev,
+                                           root_idx, plan, runs=int(stability_runs),
+                                           pct=float(perturb_pct), rng=rng)
+                res.runs = int(stability_runs)
+                lay.links["stability"] = res.stability[lay.links["candidate_index"]]
+            results[name] = res
+        regret = _regret_matrix(bench, order, results)
+    finally:
+        bench.close()
+    links, links_xy, n_none = _link_table(order, results)
+    summary = _summary(order, results, regret, n_none)
+    crs = results["base"].layout.crs
+    return ScenarioSet(order, results, summary, regret, links, links_xy, crs, dict(bench.work),
+                       int(stability_runs), float(perturb_pct), int(seed))
+
+
+def _check_design_keys(settings, name):
+    from .project import _schema
+
+    known = _schema()["design"]
+    for k in settings.get("design", {}):
+        if k not in known:
+            raise InputError(f"scenario {name!r}: unknown [design] key {k!r}; valid keys: "
+                             f"{', '.join(known)}")
+
+
+def _regret_matrix(bench, order, results):
+    """regret[i, j] = cost of layout i's links under scenario j's link costs."""
+    k = len(order)
+    out = np.full((k, k), np.nan)
+    for j, sj in enumerate(order):
+        rj = results[sj]
+        plan = rj.keys["plan"]
+        sites = rj.layout.sites
+        for i, si in enumerate(order):
+            ri = results[si]
+            if ri.keys["sites"] != rj.keys["sites"]:
+                continue                      # different sites: no common price
+            cidx = np.asarray(ri.layout.links["candidate_index"], np.int64)
+            if ri.keys["candidates"] == rj.keys["candidates"]:
+                total = rj.layout.costs.total[cidx]
+            else:                             # price layout i's links with j's settings
+                e = ri.layout.candidates.edges[cidx]
+                ek = _key("tree", si, ri.keys["candidates"])
+                t = bench.terrain_parts(ek, sites.xy, e, sites, plan, rj.weights)
+                la = bench.land_parts(ek, sites.xy, e, sites, plan)
+                total = combine_costs(t, la, rj.weights).total
+            out[i, j] = float(total.sum())
+    return out
+
+
+def _universe(order, results):
+    """Global node numbering over the scenarios' sites, and each scenario's map into it."""
+    ids, xys, block = [], [], {}
+    for name in order:
+        s = results[name].layout.sites
+        if id(s) not in block:
+            block[id(s)] = len(ids)
+            ids.append(s.node_id.astype(str))
+            xys.append(s.xy)
+    all_ids = np.concatenate(ids)
+    uniq, first, inv = np.unique(all_ids, return_index=True, return_inverse=True)
+    rank = np.empty(len(uniq), np.int64)
+    rank[np.argsort(first, kind="stable")] = np.arange(len(uniq))
+    glob = rank[inv]
+    xy = np.empty((len(uniq), 2))
+    xy[glob[::-1]] = np.concatenate(xys)[::-1]      # the first occurrence of an id wins
+    node_ids = np.empty(len(uniq), dtype=object)
+    node_ids[glob] = all_ids
+    offsets = np.cumsum([0] + [len(a) for a in ids])
+    maps = {}
+    for name in order:
+        s = results[name].layout.sites
+        b = block[id(s)]
+        maps[name] = glob[offsets[b]:offsets[b + 1]]
+    return node_ids, xy, maps
+
+
+def _pair_keys(edges_global, n):
+    lo = np.minimum(edges_global[:, 0], edges_global[:, 1])
+    hi = np.maximum(edges_global[:, 0], edges_global[:, 1])
+    return lo * np.int64(n) + hi
+
+
+def _lookup(table, queries):
+    """Row of each query key in *table* (unique int64 keys), -1 where absent."""
+    srt = np.argsort(table, kind="stable")
+    pos = np.minimum(np.searchsorted(table[srt], queries), max(len(table) - 1, 0))
+    hit = table[srt][pos] == queries if len(table) else np.zeros(len(queries), bool)
+    return np.where(hit, srt[pos], -1).astype(np.int64)
+
+
+def _layout_keys(res, gmap, n):
+    e = res.layout.candidates.edges[np.asarray(res.layout.links["candidate_index"], np.int64)]
+    return _pair_keys(gmap[e], n)
+
+
+def _link_table(order, results):
+    node_ids, gxy, maps = _universe(order, results)
+    n = len(node_ids)
+    k = len(order)
+    tree_keys = [_layout_keys(results[s], maps[s], n) for s in order]
+    cand_keys, seen = [], set()
+    for s in order:
+        ck = results[s].keys["candidates"]
+        if ck not in seen:
+            seen.add(ck)
+            cand_keys.append(_pair_keys(maps[s][results[s].layout.candidates.edges], n))
+    all_cands = np.unique(np.concatenate(cand_keys))
+    in_any = np.unique(np.concatenate(tree_keys))
+    keys = all_cands if len(all_cands) <= ALL_CANDIDATES_MAX else in_any
+    n_none = int(len(all_cands) - np.isin(all_cands, in_any).sum())
+    member = np.zeros((len(keys), k), bool)
+    for j, tk in enumerate(tree_keys):
+        member[:, j] = np.isin(keys, tk)
+    cnt = member.sum(axis=1)
+    presence = np.where(cnt == k, "all", np.where(cnt > 0, "some", "none")).astype(object)
+    names = np.asarray(order, dtype=object)
+    scen = np.array([",".join(names[row]) for row in member], dtype=object) if len(keys) else \
+        np.array([], dtype=object)
+    lo, hi = keys // n, keys % n
+    base = results["base"]
+    bkeys = _pair_keys(maps["base"][base.layout.candidates.edges], n)
+    cidx = _lookup(bkeys, keys)
+    stab = np.full(len(keys), np.nan)
+    runs = sum(results[s].runs for s in order)
+    if runs:
+        acc = np.zeros(len(keys))
+        for s in order:
+            r = results[s]
+            if r.stability is None:
+                continue
+            at = _lookup(_pair_keys(maps[s][r.layout.candidates.edges], n), keys)
+            ok = at >= 0
+            acc[ok] += r.stability[at[ok]] * r.runs
+        stab = acc / runs
+    length = np.hypot(*(gxy[hi] - gxy[lo]).T) if len(keys) else np.zeros(0)
+    table = {"candidate_index": cidx, "from_node": node_ids[lo].astype(str),
+             "to_node": node_ids[hi].astype(str), "length_m": length, "presence": presence,
+             "scenarios": scen, "n_scenarios": cnt.astype(np.int64), "stability": stab}
+    return table, np.stack([gxy[lo], gxy[hi]], axis=1), n_none
+
+
+def difference(a, b):
+    """Links added and removed going from layout *a* to layout *b*.
+
+    Links are matched by ``candidate_index``, so *a* and *b* must come from
+    the same candidate set (as scenarios sharing candidate settings do).
+
+    Parameters
+    ----------
+    a, b : Layout
+
+    Returns
+    -------
+    added, removed : ndarray of int64
+        Sorted candidate indices in *b* but not *a*, and in *a* but not *b*.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from types import SimpleNamespace as NS
+    >>> a = NS(links={"candidate_index": np.array([0, 2, 5])})
+    >>> b = NS(links={"candidate_index": np.array([0, 3, 5])})
+    >>> [x.tolist() for x in difference(a, b)]
+    [[3], [2]]
+    """
+    for lay, what in ((a, "a"), (b, "b")):
+        if "candidate_index" not in getattr(lay, "links", {}):
+            raise InputError(f"difference(): layout {what} has no 'candidate_index' link field; "
+                             "compare layouts planned by mainspan (or read from its output)")
+    ia = np.asarray(a.links["candidate_index"], np.int64)
+    ib = np.asarray(b.links["candidate_index"], np.int64)
+    return np.setdiff1d(ib, ia), np.setdiff1d(ia, ib)
+
+
+def _summary(order, results, regret, n_none):
+    k = len(order)
+    base = results["base"]
+    base_cands = base.keys["candidates"]
+    col = {"scenario": np.asarray(order, dtype=object),
+           "description": np.asarray([results[s].description for s in order], dtype=object)}
+    rows = {c: np.zeros(k) for c in ("total_length_m", "total_surface_length_m", "total_cost",
+                                     *(t[0] for t in COST_TERMS), "cost_fixed")}
+    n_links = np.zeros(k, np.int64)
+    jac = np.full(k, np.nan)
+    added = np.full(k, -1, np.int64)
+    removed = np.full(k, -1, np.int64)
+    failed = np.zeros(k, np.int64)
+    n_cand = np.zeros(k, np.int64)
+    n_imp = np.zeros(k, np.int64)
+    bset = np.asarray(base.layout.links["candidate_index"], np.int64)
+    for i, s in enumerate(order):
+        r = results[s]
+        lay = r.layout
+        cidx = np.asarray(lay.links["candidate_index"], np.int64)
+        comp = lay.costs.components
+        w = r.weights
+        rows["total_length_m"][i] = lay.total("length_m")
+        rows["total_surface_length_m"][i] = lay.total("surface_length_m")
+        rows["total_cost"][i] = lay.total("cost")
+        for colname, cname, wname in COST_TERMS:
+            rows[colname][i] = float(getattr(w, wname) * comp[cname][cidx].sum()) \
+                if getattr(w, wname) else 0.0
+        rows["cost_fixed"][i] = w.fixed * len(cidx)
+        n_links[i] = len(cidx)
+        n_cand[i] = len(lay.candidates.edges)
+        n_imp[i] = int(lay.costs.n_impassable)
+        if r.keys["candidates"] == base_cands:
+            union = np.union1d(bset, cidx).size
+            jac[i] = np.intersect1d(bset, cidx).size / union if union else 1.0
+            ad, rm = difference(base.layout, lay)
+            added[i], removed[i] = len(ad), len(rm)
+        if lay.design is not None:
+            failed[i] = len(getattr(lay.design, "failures", []) or [])
+    col.update(rows)
+    col.update({"n_links": n_links, "jaccard_base": jac, "n_added": added, "n_removed": removed,
+                "failed_checks": failed, "n_candidates": n_cand, "n_impassable": n_imp,
+                "n_candidates_in_none": np.full(k, n_none, np.int64),
+                "stability_runs": np.asarray([results[s].runs for s in order], np.int64)})
+    for j, s in enumerate(order):
+        col[f"cost_under_{s}"] = regret[:, j].copy()
+    return col
+
+
+# ------------------------------------------------------------------------------ output
+def _frames(sset):
+    import geopandas as gpd
+    import pandas as pd
+    import shapely
+
+    out = {}
+    for name in sset.names:
+        frames = sset.results[name].layout.to_frames(suffix=f"_{name}")
+        out.update({k: v for k, v in frames.items() if not k.startswith("link_profiles")})
+    lines = shapely.linestrings(sset.links_xy) if len(sset.links_xy) else np.array([], object)
+    out["scenario_links"] = gpd.GeoDataFrame(
+        pd.DataFrame({k: (v.astype(str) if np.asarray(v).dtype == object else v)
+                      for k, v in sset.links.items()}),
+        geometry=np.asarray(lines, dtype=object), crs=sset.crs)
+    out["scenario_summary"] = pd.DataFrame(
+        {k: (np.asarray(v).astype(str) if np.asarray(v).dtype == object else v)
+         for k, v in sset.summary.items()})
+    return out
+
+
+def layer_names(names):
+    """Layer names :func:`write_scenarios` writes for scenarios *names* (base included)."""
+    out = []
+    for n in names:
+        out += [f"links_{n}", f"nodes_{n}", f"run_info_{n}"]
+    return out + ["scenario_links", "scenario_summary"]
+
+
+def write_scenarios(sset, path, *, overwrite=False):
+    """Write every scenario's layers and the comparison into one GeoPackage.
+
+    Layers: ``links_<scenario>``, ``nodes_<scenario>``, ``run_info_<scenario>``
+    (and ``quantities_<scenario>`` when designed) for each scenario, the base
+    as ``*_base``; ``scenario_links`` and ``scenario_summary`` (see the module
+    notes).  Other layers in the file are kept; existing layers of these names
+    are refused unless ``overwrite=True``.
+
+    Parameters
+    ----------
+    sset : ScenarioSet
+    path : str or os.PathLike
+        A ``.gpkg`` file.
+    overwrite : bool, default=False
+
+    Returns
+    -------
+    str
+        The path written.
+    """
+    from .writers.gpkg import write_layers
+
+    path = os.fspath(path)
+    write_layers(path, _frames(sset), overwrite=overwrite)
+    return path
+
+
+def format_table(sset) -> str:
+    """Fixed-width comparison table: one row per scenario."""
+    s = sset.summary
+    names = list(s["scenario"])
+    w = max(8, *(len(n) for n in names))
+    head = (f"{'scenario':<{w}} {'links':>6} {'length m':>11} {'cost':>14} {'vs base':>8} "
+            f"{'jaccard':>7} {'+/-':>9} {'fails':>5}")
+    lines = [head, "-" * len(head)]
+    base_cost = s["total_cost"][0]
+    for i, n in enumerate(names):
+        rel = (s["total_cost"][i] / base_cost - 1.0) * 100 if base_cost else float("nan")
+        jac = s["jaccard_base"][i]
+        pm = f"+{s['n_added'][i]}/-{s['n_removed'][i]}" if s["n_added"][i] >= 0 else "n/a"
+        lines.append(f"{n:<{w}} {s['n_links'][i]:>6d} {s['total_length_m'][i]:>11,.1f} "
+                     f"{s['total_cost'][i]:>14,.1f} {rel:>+7.1f}% "
+                     f"{'n/a' if np.isnan(jac) else f'{jac:.3f}':>7} {pm:>9} "
+                     f"{s['failed_checks'][i]:>5d}")
+    lines.append("")
+    lines.append("cost of each layout (row) under each scenario's link costs (column):")
+    cw = max(12, w)
+    lines.append(f"{'':<{w}} " + " ".join(f"{n[:cw]:>{cw}}" for n in names))
+    for i, n in enumerate(names):
+        cells = []
+        for j in range(len(names)):
+            v = sset.regret[i, j]
+            txt = "n/a" if np.isnan(v) else ("impassable" if np.isinf(v) else f"{v:,.0f}")
+            cells.append(f"{txt:>{cw}}" + ("*" if i == j else ""))
+        lines.append(f"{n:<{w}} " + " ".join(cells))
+    lines.append("(* own costs; a tree is cheapest under its own costs when candidates are shared)")
+    wk = sset.work
+    lines.append(f"shared work: {wk['sites_reads']} sites read(s), {wk['candidate_builds']} "
+                 f"candidate build(s), {wk['terrain_pricings']} terrain and "
+                 f"{wk['land_pricings']} land-cost pricing(s) for {len(names)} scenarios")
+    if sset.stability_runs:
+        lines.append(f"stability: {sset.stability_runs} run(s) per scenario, land cost "
+                     f"±{sset.perturb_pct:g} % per link, seed {sset.seed}")
+    return "\n".join(lines)
+
+
+# ------------------------------------------------------------------------------ report
+def _png(fig):
+    from .report.plots import figure_bytes
+
+    import matplotlib.pyplot as plt
+
+    data = figure_bytes(fig, "png")
+    plt.close(fig)
+    return ('<img alt="" style="max-width:100%" src="data:image/png;base64,'
+            + base64.b64encode(data).decode("ascii") + '">')
+
+
+def _maps_html(sset):
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+    from matplotlib.collections import LineCollection
+
+    k = len(sset.names)
+    ncol = min(3, k)
+    nrow = -(-k // ncol)
+    fig, axes = plt.subplots(nrow, ncol, figsize=(4.2 * ncol, 4.0 * nrow), squeeze=False)
+    base = sset["base"]
+    bset = set(np.asarray(base.links["candidate_index"]).tolist())
+    for ax in axes.ravel()[k:]:
+        ax.set_axis_off()
+    for ax, name in zip(axes.ravel(), sset.names):
+        lay = sset[name]
+        r = sset.results[name]
+        seg = lay.node_xy[lay.link_ends]
+        cidx = np.asarray(lay.links["candidate_index"])
+        shared = r.keys["candidates"] == sset.results["base"].keys["candidates"]
+        new = np.fromiter((c not in bset for c in cidx), bool, len(cidx)) if shared else \
+            np.zeros(len(cidx), bool)
+        ax.add_collection(LineCollection(seg[~new], colors="#1f3b73", linewidths=1.0))
+        if new.any():
+            ax.add_collection(LineCollection(seg[new], colors="#e07b00", linewidths=2.0))
+        if shared and name != "base":
+            gone = np.setdiff1d(np.asarray(base.links["candidate_index"]), cidx)
+            if gone.size:
+                e = lay.candidates.edges[gone]
+                ax.add_collection(LineCollection(lay.node_xy[e], colors="#b00020",
+                                                 linewidths=0.8, linestyles="dashed"))
+        roots = np.asarray(lay.tree.roots, np.int64)
+        ax.plot(lay.node_xy[:, 0], lay.node_xy[:, 1], ".", ms=2, color="#555555")
+        ax.plot(lay.node_xy[roots, 0], lay.node_xy[roots, 1], "s", ms=6, color="#000000")
+        ax.set_aspect("equal")
+        ax.autoscale_view()
+        ax.set_title(name, fontsize=10)
+        ax.tick_params(labelsize=6)
+    fig.suptitle("Layouts (orange: links not in the base; dashed red: base links left out)",
+                 fontsize=10)
+    fig.tight_layout()
+    return _png(fig)
+
+
+def _bars_html(sset):
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    s = sset.summary
+    names = list(s["scenario"])
+    parts = [c for c, _, _ in COST_TERMS] + ["cost_fixed"]
+    fig, ax = plt.subplots(figsize=(max(5.0, 1.3 * len(names) + 2), 3.8))
+    bottom = np.zeros(len(names))
+    for c in parts:
+        v = np.asarray(s[c], float)
+        if not v.any():
+            continue
+        ax.bar(names, v, bottom=bottom, label=c.replace("cost_", ""))
+        bottom += v
+    ax.set_ylabel("cost")
+    ax.set_title("Cost of each layout by term", fontsize=10)
+    ax.legend(fontsize=8)
+    ax.tick_params(axis="x", labelsize=8, rotation=20)
+    fig.tight_layout()
+    return _png(fig)
+
+
+def _table_html(sset):
+    s = sset.summary
+    cols = ["scenario", "description", "n_links", "total_length_m", "total_cost",
+            "jaccard_base", "n_added", "n_removed", "failed_checks",
+            *[f"cost_under_{n}" for n in sset.names]]
+
+    def cell(v):
+        if isinstance(v, (float, np.floating)):
+            return "n/a" if np.isnan(v) else ("impassable" if np.isinf(v) else f"{v:,.2f}")
+        return html.escape(str(v))
+
+    head = "".join(f"<th>{html.escape(c)}</th>" for c in cols)
+    body = "".join("<tr>" + "".join(f"<td>{cell(s[c][i])}</td>" for c in cols) + "</tr>"
+                   for i in range(len(sset.names)))
+    note = ("<p>Columns <code>cost_under_S</code>: the cost of the row's layout priced with "
+            "scenario S's link costs. Where scenarios share candidates, each scenario's own "
+            "layout is the cheapest in its column.</p>")
+    return f"<table><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>{note}"
+
+
+def report_sections(sset):
+    """``(title, html)`` sections comparing the scenarios, for ``write_report``."""
+    return [("Scenario comparison", _table_html(sset)),
+            ("Scenario layouts", _maps_html(sset)),
+            ("Cost breakdown by scenario", _bars_html(sset))]
+
+
+# ------------------------------------------------------------------------------ CLI
+def _suffixed(path, suffix):
+    stem, ext = os.path.splitext(path)
+    return f"{stem}{suffix}{ext}"
+
+
+def compare_cli(args):
+    """``mainspan compare PROJECT.toml``: plan every scenario, print and write the comparison.
+
+    Outputs: ``--out`` (GeoPackage), else ``[output] gpkg`` with ``_scenarios``
+    added before the extension; ``--report`` (HTML), else ``[output] report``
+    with ``_scenarios`` added.  Neither given: only the table is printed.
+    Stability settings come from the options, else the project's
+    ``[stability]`` section.  Returns 0; bad input raises InputError or
+    DataFileError (exit code 2 in the CLI).
+    """
+    from .project import load_project
+    from .writers.gpkg import list_layers
+
+    proj = load_project(args.project)
+    out = proj.base.get("output", {})
+    stab = proj.stability or {}
+    runs = args.stability if args.stability is not None else stab.get("runs", 0)
+    pct = args.perturb_pct if args.perturb_pct is not None else stab.get("perturb_pct", 10.0)
+    seed = args.seed if args.seed is not None else stab.get("seed", 0)
+    overwrite = bool(args.overwrite or out.get("overwrite", False))
+    gpkg = args.out or (_suffixed(out["gpkg"], "_scenarios") if out.get("gpkg") else None)
+    rep = args.report or (_suffixed(out["report"], "_scenarios") if out.get("report") else None)
+    if gpkg and not overwrite and os.path.exists(gpkg):
+        from .errors import OverwriteError
+        clash = [n for n in list_layers(gpkg) if n in layer_names(["base", *proj.scenarios])]
+        if clash:
+            raise OverwriteError(f"{gpkg!r} already has layer(s) {', '.join(clash[:4])}"
+                                 f"{' …' if len(clash) > 4 else ''}; pass --overwrite to "
+                                 "replace them, or write elsewhere")
+    if rep and not overwrite and os.path.exists(rep):
+        from .errors import OverwriteError
+        raise OverwriteError(f"report {rep!r} exists; pass --overwrite or write elsewhere")
+    from .cli import _progress
+    sset = run_scenarios(proj, progress=_progress(args.quiet), stability_runs=runs,
+                         perturb_pct=pct, seed=seed)
+    print(sset.table())
+    if gpkg:
+        write_scenarios(sset, gpkg, overwrite=overwrite)
+        print(f"written         {gpkg} (layers: links_/nodes_/run_info_<scenario>, "
+              "scenario_links, scenario_summary)")
+    if rep:
+        from .report.html import write_report
+        write_report(sset["base"], rep, overwrite=overwrite,
+                     title=f"Scenario comparison: {os.path.basename(proj.path)}",
+                     extra_sections=report_sections(sset))
+        print(f"report          {rep}")
+    if any(sset[n].system for n in sset.names):
+        from .cli import CAUTION
+        print(CAUTION)
+    sys.stdout.flush()
+    return 0
