@@ -333,8 +333,10 @@ def _read_background(path, crs, bounds, max_px=1500):
     """Raster band 1 over ``bounds`` in ``crs``, decimated to ≤ max_px, or None."""
     try:
         import rasterio
+        from rasterio.crs import CRS
+        from rasterio.enums import Resampling
         from rasterio.vrt import WarpedVRT
-        from rasterio.windows import from_bounds
+        from rasterio.windows import Window, from_bounds
     except ImportError:
         return None
     if not path or not os.path.exists(path):
@@ -343,18 +345,22 @@ def _read_background(path, crs, bounds, max_px=1500):
         with rasterio.open(path) as src:
             ds = src
             vrt = None
-            if crs is not None and src.crs is not None and not src.crs.equals(
-                    rasterio.crs.CRS.from_wkt(crs.to_wkt())):
-                vrt = WarpedVRT(src, crs=rasterio.crs.CRS.from_wkt(crs.to_wkt()))
+            want = CRS.from_wkt(crs.to_wkt()) if crs is not None else None
+            if want is not None and src.crs is not None and src.crs != want:
+                vrt = WarpedVRT(src, crs=want, resampling=Resampling.bilinear)
                 ds = vrt
             try:
                 win = from_bounds(*bounds, transform=ds.transform)
                 win = win.round_offsets().round_lengths()
+                try:        # only the part of the map the raster covers (no boundless reads)
+                    win = win.intersection(Window(0, 0, ds.width, ds.height))
+                except Exception:
+                    return None
                 h, w = max(int(win.height), 1), max(int(win.width), 1)
                 f = max(1.0, max(h, w) / max_px)
                 shape = (max(1, int(h / f)), max(1, int(w / f)))
-                a = ds.read(1, window=win, out_shape=shape, boundless=True, masked=True,
-                            resampling=rasterio.enums.Resampling.average)
+                a = ds.read(1, window=win, out_shape=shape, masked=True,
+                            resampling=Resampling.average)
                 t = ds.window_transform(win)
                 west, north = t.c, t.f
                 east = west + t.a * win.width
@@ -364,7 +370,10 @@ def _read_background(path, crs, bounds, max_px=1500):
                     vrt.close()
         z = np.ma.filled(a.astype(float), np.nan)
         return z, (west, east, south, north)
-    except Exception:
+    except Exception as exc:                  # the map is drawn without a background
+        import warnings
+
+        warnings.warn(f"background raster {path!r} not drawn: {exc}", stacklevel=3)
         return None
 
 
@@ -436,7 +445,7 @@ def plan_map(layout, *, background=None, figsize=(9.0, 8.0), title=None):
         sizes = np.unique(size[np.isfinite(size)])
         blues = mpl.colormaps["Blues"]
         def cmap(t):                       # light-to-dark blue, never near-white
-            return blues(0.45 + 0.55 * np.asarray(t, float))
+            return blues(0.6 + 0.4 * np.asarray(t, float))
         k = np.searchsorted(sizes, np.nan_to_num(size, nan=sizes[0]))
         colors = cmap(k / max(len(sizes) - 1, 1))
         widths = 1.2 + 3.0 * k / max(len(sizes) - 1, 1)
