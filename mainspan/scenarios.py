@@ -724,9 +724,7 @@ def _link_table(order, results):
         member[:, j] = np.isin(keys, tk)
     cnt = member.sum(axis=1)
     presence = np.where(cnt == k, "all", np.where(cnt > 0, "some", "none")).astype(object)
-    names = np.asarray(order, dtype=object)
-    scen = np.array([",".join(names[row]) for row in member], dtype=object) if len(keys) else \
-        np.array([], dtype=object)
+    scen = _membership_labels(member, order)
     lo, hi = keys // n, keys % n
     base = results["base"]
     bkeys = _pair_keys(maps["base"][base.layout.candidates.edges], n)
@@ -748,6 +746,16 @@ def _link_table(order, results):
              "to_node": node_ids[hi].astype(str), "length_m": length, "presence": presence,
              "scenarios": scen, "n_scenarios": cnt.astype(np.int64), "stability": stab}
     return table, np.stack([gxy[lo], gxy[hi]], axis=1), n_none
+
+
+def _membership_labels(member, order):
+    """Comma lists of scenario names per row of a boolean (rows, k) matrix, vectorised."""
+    if not len(member):
+        return np.array([], dtype=object)
+    patterns, inv = np.unique(member, axis=0, return_inverse=True)
+    names = np.asarray(order, dtype=object)
+    labels = np.array([",".join(names[p]) for p in patterns], dtype=object)
+    return labels[np.asarray(inv).ravel()]
 
 
 def difference(a, b):
@@ -952,7 +960,7 @@ def _maps_html(sset):
     nrow = -(-k // ncol)
     fig, axes = plt.subplots(nrow, ncol, figsize=(4.2 * ncol, 4.0 * nrow), squeeze=False)
     base = sset["base"]
-    bset = set(np.asarray(base.links["candidate_index"]).tolist())
+    bset = np.asarray(base.links["candidate_index"])
     for ax in axes.ravel()[k:]:
         ax.set_axis_off()
     for ax, name in zip(axes.ravel(), sset.names):
@@ -961,8 +969,7 @@ def _maps_html(sset):
         seg = lay.node_xy[lay.link_ends]
         cidx = np.asarray(lay.links["candidate_index"])
         shared = r.keys["candidates"] == sset.results["base"].keys["candidates"]
-        new = np.fromiter((c not in bset for c in cidx), bool, len(cidx)) if shared else \
-            np.zeros(len(cidx), bool)
+        new = ~np.isin(cidx, bset) if shared else np.zeros(len(cidx), bool)
         ax.add_collection(LineCollection(seg[~new], colors="#1f3b73", linewidths=1.0))
         if new.any():
             ax.add_collection(LineCollection(seg[new], colors="#e07b00", linewidths=2.0))
@@ -978,6 +985,7 @@ def _maps_html(sset):
         ax.set_aspect("equal")
         ax.autoscale_view()
         ax.set_title(name, fontsize=10)
+        ax.ticklabel_format(useOffset=False, style="plain")
         ax.tick_params(labelsize=6)
     fig.suptitle("Layouts (orange: links not in the base; dashed red: base links left out)",
                  fontsize=10)

@@ -346,3 +346,16 @@ def test_cli_bad_scenario_key(project, tmp_path, capsys):
     lines = stderr.strip().splitlines()
     assert len(lines) == 1 and "lenght" in lines[0] and "length" in lines[0]
     assert "Traceback" not in stderr
+
+
+def test_scenario_links_large_candidate_sets_keep_used_links(project, monkeypatch):
+    import mainspan.scenarios as sc
+
+    monkeypatch.setattr(sc, "ALL_CANDIDATES_MAX", 10)
+    s = sc.run_scenarios(project, names=["plain", "strip"])
+    t = s.links
+    used = np.unique(np.concatenate([s[n].links["candidate_index"] for n in s.names]))
+    np.testing.assert_array_equal(np.sort(t["candidate_index"]), used)
+    assert (t["n_scenarios"] > 0).all() and "none" not in set(t["presence"])
+    assert s.summary["n_candidates_in_none"][0] == len(s["base"].candidates.edges) - len(used)
+    assert np.isnan(t["stability"]).all()          # no stability runs were made
