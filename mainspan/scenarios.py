@@ -875,8 +875,10 @@ def write_scenarios(sset, path, *, overwrite=False):
     Layers: ``links_<scenario>``, ``nodes_<scenario>``, ``run_info_<scenario>``
     (and ``quantities_<scenario>`` when designed) for each scenario, the base
     as ``*_base``; ``scenario_links`` and ``scenario_summary`` (see the module
-    notes).  Other layers in the file are kept; existing layers of these names
-    are refused unless ``overwrite=True``.
+    notes).  Ground profiles (``link_profiles``) are left out to keep the
+    file small; ``mainspan plan`` writes them for one scenario.  Other layers
+    in the file are kept; existing layers of these names are refused unless
+    ``overwrite=True``.
 
     Parameters
     ----------
