@@ -162,8 +162,10 @@ def _summary(layout):
                               _e(f"{float(np.nansum(np.asarray(q[col], float))):,.2f}")))
     else:
         for col in lk:
-            if col.endswith("_cost") or col in ("climb_m", "descent_m", "crossings"):
+            if col.endswith("_cost") or col == "crossings":
                 pairs.append((col.replace("_", " "), _e(f"{layout.total(col):,.2f}")))
+            elif col in ("climb_m", "descent_m"):
+                pairs.append((f"total {col[:-2]}", _e(f"{layout.total(col):,.1f} m")))
     if "checks" in lk:
         nf = int(_failed(lk["checks"]).sum())
         nfn = int(_failed(nd["checks"]).sum()) if "checks" in nd else 0
@@ -226,6 +228,7 @@ def _run_info(layout):
             path, _, digest = s.rpartition(" ")
             if not path:
                 path, digest = s, ""
+            digest = digest.removeprefix("sha256=")
             rows.append(f"<tr><td>{_e(name)}</td><td class=\"mono\">{_e(path)}</td>"
                         f"<td class=\"mono\">{_e(digest)}</td></tr>")
         out.append('<h3>Inputs</h3><table id="inputs"><thead><tr><th>input</th><th>path</th>'

@@ -377,7 +377,19 @@ def _read_background(path, crs, bounds, max_px=1500):
         return None
 
 
-def plan_map(layout, *, background=None, figsize=(9.0, 8.0), title=None):
+def _raster_paths(value):
+    """Paths in a run_info raster entry: ``"a.tif"`` or ``"name=a.tif, other=b.tif"``."""
+    out = []
+    for part in str(value or "").split(","):
+        part = part.strip()
+        if "=" in part and not os.path.exists(part):
+            part = part.split("=", 1)[1].strip()
+        if part:
+            out.append(part)
+    return out
+
+
+def plan_map(layout, *, background=None, figsize=None, title=None):
     """Plan view of the layout.
 
     Parameters
@@ -386,7 +398,8 @@ def plan_map(layout, *, background=None, figsize=(9.0, 8.0), title=None):
     background : {None, "terrain", "land_cost", "none"}, default None
         ``None`` uses the terrain (as a hillshade) when ``run_info["terrain"]``
         names a readable raster, else the land-cost raster, else nothing.
-    figsize : (float, float), default (9, 8)
+    figsize : (float, float), optional
+        Inches; by default 9 wide and as tall as the layout's shape needs.
     title : str, optional
 
     Returns
@@ -404,19 +417,29 @@ def plan_map(layout, *, background=None, figsize=(9.0, 8.0), title=None):
     xy = np.asarray(layout.node_xy, float)
     ends = np.asarray(layout.link_ends, np.int64).reshape(-1, 2)
     lk, nd = layout.links, layout.nodes
-    fig = Figure(figsize=figsize, dpi=100)
-    ax = fig.add_axes([0.08, 0.07, 0.72, 0.86])
     if len(xy):
         lo, hi = xy.min(0), xy.max(0)
     else:
         lo, hi = np.zeros(2), np.ones(2)
     pad = 0.06 * max(float((hi - lo).max()), 10.0)
     bounds = (lo[0] - pad, lo[1] - pad, hi[0] + pad, hi[1] + pad)
+    # size the axes to the layout's shape so the map fills its box (equal scales)
+    ax_w = 6.3
+    ax_h = float(np.clip(ax_w * (bounds[3] - bounds[1]) / (bounds[2] - bounds[0]), 2.5, 10.0))
+    if figsize is None:
+        figsize = (9.0, ax_h + 1.2)
+    fig = Figure(figsize=figsize, dpi=100)
+    ax = fig.add_axes([0.09, 0.75 / figsize[1], ax_w / figsize[0],
+                       min(ax_h, figsize[1] - 1.1) / figsize[1]])
     bg_used = "none"
     order = {"terrain": ["terrain"], "land_cost": ["land_cost"], "none": [],
              None: ["terrain", "land_cost"]}[background]
     for kind in order:
-        got = _read_background(layout.run_info.get(kind, ""), layout.crs, bounds)
+        got = None
+        for raster in _raster_paths(layout.run_info.get(kind, "")):
+            got = _read_background(raster, layout.crs, bounds)
+            if got is not None:
+                break
         if got is None:
             continue
         z, ext = got
