@@ -633,6 +633,23 @@ def _check_design_keys(settings, name):
                              f"{', '.join(known)}")
 
 
+def same_sites(a, b) -> bool:
+    """Whether two scenario results have the same sites (ids and coordinates, in order)."""
+    if a.keys["sites"] == b.keys["sites"]:
+        return True
+    sa, sb = a.layout.sites, b.layout.sites
+    return (sa.n == sb.n and np.array_equal(sa.node_id.astype(str), sb.node_id.astype(str))
+            and np.array_equal(sa.xy, sb.xy))
+
+
+def same_candidates(a, b) -> bool:
+    """Whether two scenario results share one candidate set (so ``candidate_index`` matches)."""
+    if a.keys["candidates"] == b.keys["candidates"]:
+        return True
+    return same_sites(a, b) and np.array_equal(a.layout.candidates.edges,
+                                               b.layout.candidates.edges)
+
+
 def _regret_matrix(bench, order, results):
     """regret[i, j] = cost of layout i's links under scenario j's link costs."""
     k = len(order)
@@ -643,10 +660,10 @@ def _regret_matrix(bench, order, results):
         sites = rj.layout.sites
         for i, si in enumerate(order):
             ri = results[si]
-            if ri.keys["sites"] != rj.keys["sites"]:
+            if not same_sites(ri, rj):
                 continue                      # different sites: no common price
             cidx = np.asarray(ri.layout.links["candidate_index"], np.int64)
-            if ri.keys["candidates"] == rj.keys["candidates"]:
+            if same_candidates(ri, rj):
                 total = rj.layout.costs.total[cidx]
             else:                             # price layout i's links with j's settings
                 e = ri.layout.candidates.edges[cidx]
@@ -794,7 +811,6 @@ def difference(a, b):
 def _summary(order, results, regret, n_none):
     k = len(order)
     base = results["base"]
-    base_cands = base.keys["candidates"]
     col = {"scenario": np.asarray(order, dtype=object),
            "description": np.asarray([results[s].description for s in order], dtype=object)}
     rows = {c: np.zeros(k) for c in ("total_length_m", "total_surface_length_m", "total_cost",
@@ -823,7 +839,7 @@ def _summary(order, results, regret, n_none):
         n_links[i] = len(cidx)
         n_cand[i] = len(lay.candidates.edges)
         n_imp[i] = int(lay.costs.n_impassable)
-        if r.keys["candidates"] == base_cands:
+        if same_candidates(r, base):
             union = np.union1d(bset, cidx).size
             jac[i] = np.intersect1d(bset, cidx).size / union if union else 1.0
             ad, rm = difference(base.layout, lay)
@@ -970,7 +986,7 @@ def _maps_html(sset):
         r = sset.results[name]
         seg = lay.node_xy[lay.link_ends]
         cidx = np.asarray(lay.links["candidate_index"])
-        shared = r.keys["candidates"] == sset.results["base"].keys["candidates"]
+        shared = same_candidates(r, sset.results["base"])
         new = ~np.isin(cidx, bset) if shared else np.zeros(len(cidx), bool)
         ax.add_collection(LineCollection(seg[~new], colors="#1f3b73", linewidths=1.0))
         if new.any():

@@ -359,3 +359,40 @@ def test_scenario_links_large_candidate_sets_keep_used_links(project, monkeypatc
     assert (t["n_scenarios"] > 0).all() and "none" not in set(t["presence"])
     assert s.summary["n_candidates_in_none"][0] == len(s["base"].candidates.edges) - len(used)
     assert np.isnan(t["stability"]).all()          # no stability runs were made
+
+
+def test_regret_across_candidate_sets(project, tmp_path):
+    from mainspan.costs import CostWeights, price_links
+    from mainspan.scenarios import run_scenarios
+
+    text = open(project).read() + textwrap.dedent("""
+        [scenarios.knn]
+        candidates = { method = "knn", k = 5 }
+
+        [scenarios.complete]
+        candidates = { method = "complete" }
+
+        [scenarios.merged]
+        description = "a [sites] change that leaves the sites as they are"
+        sites = { merge_within_m = 0.01 }
+    """)
+    path = tmp_path / "more.toml"
+    path.write_text(text)
+    s = run_scenarios(path, names=["knn", "complete", "merged"])
+    assert s.work["sites_reads"] == 2 and s.work["candidate_builds"] == 4
+    r = s.regret
+    b, kn, co, me = (s.names.index(n) for n in ("base", "knn", "complete", "merged"))
+    # equal content counts as shared: same sites, same candidates, same tree
+    assert s.summary["jaccard_base"][me] == 1.0 and r[me, b] == r[b, b]
+    # the knn tree priced under the base costs, re-priced by price_links directly
+    lay = s["knn"]
+    e = np.sort(lay.candidates.edges[lay.links["candidate_index"]], axis=1)
+    w = CostWeights(length=10.0, land=1.0, climb=8.0, steep_slope_pct=8.0, steep_per_m=5.0)
+    ref = price_links(lay.node_xy, e, working_crs=lay.crs, terrain=str(tmp_path / "dem.tif"),
+                      land_cost={"base": str(tmp_path / "land_a.tif")}, weights=w)
+    assert r[kn, b] == pytest.approx(ref.total.sum(), rel=1e-12)
+    # the complete candidate set holds every tree's links, so its own tree is the cheapest
+    # under its costs, and equals networkx's minimum spanning tree over all pairs
+    assert r[co, co] <= r[:, co].min() * (1 + 1e-12)
+    assert r[co, co] == pytest.approx(_nx_mst_weight(s["complete"]), rel=1e-9)
+    assert np.isnan(s.summary["jaccard_base"][kn])       # other candidate ids: no Jaccard
