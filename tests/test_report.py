@@ -184,6 +184,7 @@ def test_report_structure(tmp_path, system):
         write_report(lay, p)
 
 
+@pytest.mark.browser
 def test_report_in_headless_chromium(tmp_path):
     if not os.path.exists(CHROMIUM):
         pytest.skip(f"{CHROMIUM} not installed (apt-get install chromium) — browser check skipped")
