@@ -285,7 +285,7 @@ def directional_link_costs(
     --------
     >>> d = directional_link_costs([[0, 1]], [100.0], [100.0], [10.0, 12.0], min_slope=0.0)
     >>> d.tails.tolist(), d.heads.tolist(), d.weights.tolist()
-    ([0, 1], [1, 0], [100.0, 200.0])
+    ([0, 1], [1, 0], [100.0, 2100.0])
     """
     e = np.asarray(edges)
     if e.ndim != 2 or e.shape[1] != 2:
