@@ -38,12 +38,19 @@ _SALT = "mainspan"
 
 
 def _plt():
+    """Select the headless Agg backend unless the caller already uses pyplot.
+
+    Figures here are plain :class:`matplotlib.figure.Figure` objects (no
+    pyplot state), so an interactive session that has imported pyplot keeps
+    its own backend.
+    """
+    import sys
+
     import matplotlib
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    return plt
+    if "matplotlib.pyplot" not in sys.modules:
+        matplotlib.use("Agg")
+    return matplotlib
 
 
 # ------------------------------------------------------------------ tree helpers
@@ -192,7 +199,7 @@ def long_section(layout, *, path=None, to_node=None, longest=True, figsize=(11.0
     exaggeration is the largest 1/2/5 step that fits the data and is exact for
     the drawn axes (written in the title as ``V×N``).
     """
-    plt = _plt()
+    _plt()
     from matplotlib.figure import Figure
 
     if path is None:
