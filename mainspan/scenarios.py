@@ -76,7 +76,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .errors import CertificateError, InputError
+from .errors import CertificateError, DataFileError, InputError
 
 __all__ = ["ScenarioResult", "ScenarioSet", "run_scenarios", "write_scenarios", "difference",
            "combine_costs", "compare_cli", "ALL_CANDIDATES_MAX"]
@@ -566,7 +566,7 @@ def run_scenarios(project, *, names=None, progress=None, stability_runs=0, pertu
     InputError
         An unknown scenario name, bad settings in any scenario.
     """
-    from .project import Project, load_project, plan_kwargs
+    from .project import Project, load_project
 
     if not isinstance(project, Project):
         project = load_project(project)
@@ -587,32 +587,13 @@ def run_scenarios(project, *, names=None, progress=None, stability_runs=0, pertu
     bench = _Workbench(say)
     results = {}
     try:
-        for i, name in enumerate(order):
-            settings = project.settings_for(name)
-            desc = "" if name == "base" else project.scenarios[name].get("description", "")
-            _check_design_keys(settings, name)
-            path, read_kw, plan, _ = plan_kwargs(settings)
-            weights = _weights(plan)
-            sk, sites = bench.get_sites(path, read_kw)
-            ck, cands = bench.get_candidates(sk, sites, plan)
-            terr = bench.terrain_parts(ck, sites.xy, cands.edges, sites, plan, weights)
-            land = bench.land_parts(ck, sites.xy, cands.edges, sites, plan)
-            costs = combine_costs(terr, land, weights)
-            elev = _node_elevations(bench, sk, sites, plan)
-            say(f"tree {name}", 0, 1)
-            lay, root_idx = _assemble(bench, sites, cands, costs, elev, plan, name=name,
-                                      description=desc)
-            res = ScenarioResult(name, desc, settings, lay, weights,
-                                 keys={"sites": sk, "candidates": ck, "plan": plan})
-            if stability_runs:
-                say(f"stability {name}", 0, stability_runs)
-                rng = np.random.default_rng([int(seed), zlib.crc32(name.encode())])
-                res.stability = _stability(sites, cands.edges, terr, land, weights, elev,
-                                           root_idx, plan, runs=int(stability_runs),
-                                           pct=float(perturb_pct), rng=rng)
-                res.runs = int(stability_runs)
-                lay.links["stability"] = res.stability[lay.links["candidate_index"]]
-            results[name] = res
+        for name in order:
+            try:
+                results[name] = _run_one(project, name, bench, say, stability_runs,
+                                         perturb_pct, seed)
+            except (InputError, DataFileError) as exc:   # keep the class, name the scenario
+                exc.args = (f"scenario {name!r}: {exc}",) + exc.args[1:]
+                raise
         regret = _regret_matrix(bench, order, results)
     finally:
         bench.close()
@@ -623,14 +604,43 @@ def run_scenarios(project, *, names=None, progress=None, stability_runs=0, pertu
                        int(stability_runs), float(perturb_pct), int(seed))
 
 
-def _check_design_keys(settings, name):
+def _run_one(project, name, bench, say, stability_runs, perturb_pct, seed):
+    from .project import plan_kwargs
+
+    settings = project.settings_for(name)
+    desc = "" if name == "base" else project.scenarios[name].get("description", "")
+    _check_design_keys(settings)
+    path, read_kw, plan, _ = plan_kwargs(settings)
+    weights = _weights(plan)
+    sk, sites = bench.get_sites(path, read_kw)
+    ck, cands = bench.get_candidates(sk, sites, plan)
+    terr = bench.terrain_parts(ck, sites.xy, cands.edges, sites, plan, weights)
+    land = bench.land_parts(ck, sites.xy, cands.edges, sites, plan)
+    costs = combine_costs(terr, land, weights)
+    elev = _node_elevations(bench, sk, sites, plan)
+    say(f"tree {name}", 0, 1)
+    lay, root_idx = _assemble(bench, sites, cands, costs, elev, plan, name=name,
+                              description=desc)
+    res = ScenarioResult(name, desc, settings, lay, weights,
+                         keys={"sites": sk, "candidates": ck, "plan": plan})
+    if stability_runs:
+        say(f"stability {name}", 0, stability_runs)
+        rng = np.random.default_rng([int(seed), zlib.crc32(name.encode())])
+        res.stability = _stability(sites, cands.edges, terr, land, weights, elev, root_idx,
+                                   plan, runs=int(stability_runs), pct=float(perturb_pct),
+                                   rng=rng)
+        res.runs = int(stability_runs)
+        lay.links["stability"] = res.stability[lay.links["candidate_index"]]
+    return res
+
+
+def _check_design_keys(settings):
     from .project import _schema
 
     known = _schema()["design"]
     for k in settings.get("design", {}):
         if k not in known:
-            raise InputError(f"scenario {name!r}: unknown [design] key {k!r}; valid keys: "
-                             f"{', '.join(known)}")
+            raise InputError(f"unknown [design] key {k!r}; valid keys: {', '.join(known)}")
 
 
 def same_sites(a, b) -> bool:

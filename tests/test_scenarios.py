@@ -396,3 +396,14 @@ def test_regret_across_candidate_sets(project, tmp_path):
     assert r[co, co] <= r[:, co].min() * (1 + 1e-12)
     assert r[co, co] == pytest.approx(_nx_mst_weight(s["complete"]), rel=1e-9)
     assert np.isnan(s.summary["jaccard_base"][kn])       # other candidate ids: no Jaccard
+
+
+def test_bad_scenario_setting_names_the_scenario(project, tmp_path):
+    from mainspan.errors import DataFileError
+    from mainspan.scenarios import run_scenarios
+
+    text = open(project).read() + '\n[scenarios.flat]\nrasters = { terrain = "missing.tif" }\n'
+    path = tmp_path / "flat.toml"
+    path.write_text(text)
+    with pytest.raises(DataFileError, match="^scenario 'flat': cannot open raster .*missing.tif"):
+        run_scenarios(path, names=["flat"])
