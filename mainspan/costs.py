@@ -108,7 +108,7 @@ BASE_COMPONENTS = (
 )
 _POLICIES = ("barrier", "skip", "error")
 _NAME = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
-_CHUNK_SAMPLES = 2_000_000
+_CHUNK_SAMPLES = 1_000_000
 
 
 def _check_term(name, fn):
@@ -344,6 +344,7 @@ def terrain_term(ctx: CostContext) -> dict:
         start = end
         if ctx.progress is not None:
             ctx.progress(end, m)
+    surf.release()
     cost = w.climb * cols["climb_m"] + w.descent * cols["descent_m"]
     if w.steep_per_m:
         cost = cost + w.steep_per_m * cols["steep_length_m"]
@@ -398,6 +399,7 @@ def land_term(ctx: CostContext) -> dict:
                 if table is not None:
                     vals = _apply_classes(vals, table, surf)
                 _accumulate(oo, ll, vals, per[name], scratch)
+            surf.release()
             land += per[name]
             nod = np.maximum(nod, scratch + outside)
             done[0] += m
@@ -420,6 +422,8 @@ def land_term(ctx: CostContext) -> dict:
             else:  # a constant expression: one value everywhere on the grid
                 v = ctx.expression.evaluate({}) * np.ones(ll.shape[0])
             _accumulate(oo, ll, v, land, scratch)
+        for surf in ctx.land.values():
+            surf.release()
         nod = scratch + outside
         sources = f"cost expression {ctx.expression.text!r} over " + ", ".join(
             f"{ctx.land[n].name!r} ({ctx.land[n].path})" for n in (used or tuple(ctx.land)))

@@ -42,9 +42,11 @@ A raster whose float64 copy fits in ``max_memory_mb`` is read whole once and
 kept.  A larger one is never read whole: it is split into tiles (a multiple
 of the raster's block size, about 1024 x 1024 cells, smaller if the budget
 demands), every query is grouped by tile with a counting sort, each needed
-tile is read once through a :class:`rasterio.windows.Window` (with a one-cell
-halo so bilinear neighbours never straddle two tiles), and tiles are kept in
-a least-recently-used cache bounded by the budget.  Work on many links runs
+tile is read once through a :class:`rasterio.windows.Window` (windows are
+aligned on the raster's blocks, so no block is decoded twice; the few bilinear
+samples whose neighbours straddle two tiles are split into their four cells
+and grouped with the rest, so each tile is still read once per query), and
+tiles are kept in a least-recently-used cache bounded by the budget.  Work on many links runs
 in chunks, links ordered by the tile of their midpoint so consecutive chunks
 reuse the cached tiles.
 
@@ -71,6 +73,8 @@ __all__ = ["Surface", "open_surface", "traverse_grid"]
 _CHUNK_CELLS = 4_000_000       # traversal crossings held at once
 _CHUNK_POINTS = 2_000_000      # sample positions held at once
 _TILE_TARGET = 1024
+_GDAL_CACHE_BYTES = 64 * 2 ** 20
+_ORDER_BLOCK = 256             # cells per side of the blocks that order links for locality
 
 
 # --------------------------------------------------------------------------- numba kernels
@@ -247,6 +251,22 @@ def _cell_keys(rows, cols, tr, tc, ntc):
 
 
 @numba.njit(cache=True)
+def _point_keys(colf, rowf, w, h, tr, tc, ntc, nt):
+    """Tile of each fractional position (``nt`` for positions outside the raster)."""
+    out = np.empty(colf.shape[0], np.int64)
+    for q in range(colf.shape[0]):
+        cf = colf[q]
+        rf = rowf[q]
+        if cf >= 0.0 and cf <= w and rf >= 0.0 and rf <= h:
+            r = min(int(rf), h - 1)
+            c = min(int(cf), w - 1)
+            out[q] = (r // tr) * ntc + c // tc
+        else:
+            out[q] = nt
+    return out
+
+
+@numba.njit(cache=True)
 def _gather_cells(arr, r0, c0, rows, cols, idx, out):
     for q in range(idx.shape[0]):
         i = idx[q]
@@ -255,21 +275,21 @@ def _gather_cells(arr, r0, c0, rows, cols, idx, out):
 
 @numba.njit(cache=True)
 def _bilinear_prep(colf, rowf, w, h, tr, tc, ntc):
-    """Neighbour indices and weights for bilinear sampling at pixel centres."""
+    """Neighbour indices, weights and tile key for bilinear sampling at pixel centres.
+
+    ``key`` is the tile holding all four neighbours, -1 outside the raster, and -2
+    when the neighbours straddle a tile border (those are gathered cell by cell).
+    """
     n = colf.shape[0]
-    i0 = np.empty(n, np.int64)
-    j0 = np.empty(n, np.int64)
-    fu = np.empty(n, np.float64)
-    fv = np.empty(n, np.float64)
+    i0 = np.zeros(n, np.int64)
+    j0 = np.zeros(n, np.int64)
+    fu = np.zeros(n, np.float64)
+    fv = np.zeros(n, np.float64)
     key = np.full(n, -1, np.int64)
     for q in range(n):
         cf = colf[q]
         rf = rowf[q]
         if not (cf >= 0.0 and cf <= w and rf >= 0.0 and rf <= h):
-            i0[q] = 0
-            j0[q] = 0
-            fu[q] = 0.0
-            fv[q] = 0.0
             continue
         u = min(max(cf - 0.5, 0.0), w - 1.0)
         v = min(max(rf - 0.5, 0.0), h - 1.0)
@@ -279,53 +299,63 @@ def _bilinear_prep(colf, rowf, w, h, tr, tc, ntc):
         j0[q] = jj
         fu[q] = u - jj
         fv[q] = v - ii
-        key[q] = (ii // tr) * ntc + jj // tc
+        ib = min(ii + 1, h - 1)
+        jb = min(jj + 1, w - 1)
+        if ib // tr != ii // tr or jb // tc != jj // tc:
+            key[q] = -2
+        else:
+            key[q] = (ii // tr) * ntc + jj // tc
     return i0, j0, fu, fv, key
 
 
 @numba.njit(cache=True)
-def _bilinear_tile(arr, r0, c0, w, h, i0, j0, fu, fv, idx, out):
+def _bilinear_combine(v00, v01, v10, v11, a, b):
+    w00 = (1.0 - a) * (1.0 - b)
+    w01 = a * (1.0 - b)
+    w10 = (1.0 - a) * b
+    w11 = a * b
+    s = 0.0
+    if w00 > 0.0:
+        if np.isnan(v00):
+            return np.nan
+        s += w00 * v00
+    if w01 > 0.0:
+        if np.isnan(v01):
+            return np.nan
+        s += w01 * v01
+    if w10 > 0.0:
+        if np.isnan(v10):
+            return np.nan
+        s += w10 * v10
+    if w11 > 0.0:
+        if np.isnan(v11):
+            return np.nan
+        s += w11 * v11
+    return s
+
+
+@numba.njit(cache=True)
+def _bilinear_values(v, fu, fv, out, idx):
+    n = idx.shape[0]
+    for q in range(n):
+        out[idx[q]] = _bilinear_combine(v[q], v[n + q], v[2 * n + q], v[3 * n + q], fu[q], fv[q])
+
+
+@numba.njit(cache=True)
+def _bilinear_tile(arr, r0, c0, w, h, i0, j0, fu, fv, idx, n, srows, scols, out, sval):
+    """Bilinear samples (idx < n) and straddler cells (idx >= n) that lie in one tile."""
     for q in range(idx.shape[0]):
         p = idx[q]
-        ia = i0[p]
-        ja = j0[p]
-        ib = min(ia + 1, h - 1)
-        jb = min(ja + 1, w - 1)
-        a = fu[p]
-        b = fv[p]
-        w00 = (1.0 - a) * (1.0 - b)
-        w01 = a * (1.0 - b)
-        w10 = (1.0 - a) * b
-        w11 = a * b
-        v00 = arr[ia - r0, ja - c0]
-        v01 = arr[ia - r0, jb - c0]
-        v10 = arr[ib - r0, ja - c0]
-        v11 = arr[ib - r0, jb - c0]
-        s = 0.0
-        bad = False
-        if w00 > 0.0:
-            if np.isnan(v00):
-                bad = True
-            else:
-                s += w00 * v00
-        if w01 > 0.0:
-            if np.isnan(v01):
-                bad = True
-            else:
-                s += w01 * v01
-        if w10 > 0.0:
-            if np.isnan(v10):
-                bad = True
-            else:
-                s += w10 * v10
-        if w11 > 0.0:
-            if np.isnan(v11):
-                bad = True
-            else:
-                s += w11 * v11
-        if w00 + w01 + w10 + w11 == 0.0:  # cannot happen, but never divide by luck
-            bad = True
-        out[p] = np.nan if bad else s
+        if p >= n:
+            k = p - n
+            sval[k] = arr[srows[k] - r0, scols[k] - c0]
+            continue
+        ia = i0[p] - r0
+        ja = j0[p] - c0
+        ib = min(i0[p] + 1, h - 1) - r0
+        jb = min(j0[p] + 1, w - 1) - c0
+        out[p] = _bilinear_combine(arr[ia, ja], arr[ia, jb], arr[ib, ja], arr[ib, jb],
+                                   fu[p], fv[p])
 
 
 @numba.njit(cache=True)
@@ -386,6 +416,20 @@ def _profile_stations(length, step):
             st[offsets[i] + j] = length[i] * j / s
         st[offsets[i + 1] - 1] = length[i]
     return offsets, st
+
+
+@numba.njit(cache=True)
+def _stations_to_index(offsets, station, length, c0, r0, c1, r1):
+    n = station.shape[0]
+    colf = np.empty(n, np.float64)
+    rowf = np.empty(n, np.float64)
+    for i in range(offsets.shape[0] - 1):
+        L = length[i]
+        for k in range(offsets[i], offsets[i + 1]):
+            f = station[k] / L if L > 0 else 0.0
+            colf[k] = c0[i] + f * (c1[i] - c0[i])
+            rowf[k] = r0[i] + f * (r1[i] - r0[i])
+    return colf, rowf
 
 
 def traverse_grid(x0, y0, x1, y1, width, height):
@@ -561,7 +605,7 @@ class Surface:
             tr, tc = self.height, self.width
         else:
             side = _TILE_TARGET
-            while (side + 1) ** 2 * 8.0 > self._budget / 4 and side > 8:
+            while side ** 2 * 8.0 > self._budget / 4 and side > 8:
                 side //= 2
             bh, bw = ds.block_shapes[self.band - 1]
             tr = max(bh, (side // bh) * bh) if bh <= side else side
@@ -581,6 +625,12 @@ class Surface:
         self._cache.clear()
         self._cache_bytes = 0
         self._ds.close()
+
+    def release(self):
+        """Drop cached tiles of a raster read tile by tile (a whole-read raster is kept)."""
+        if self._ntr * self._ntc > 1:
+            self._cache.clear()
+            self._cache_bytes = 0
 
     def __enter__(self):
         return self
@@ -623,11 +673,16 @@ class Surface:
         """Read one window as float64 with NaN for nodata (the only place that reads)."""
         from rasterio.windows import Window
 
+        import rasterio
+
         win = Window(col0, row0, ncols, nrows)
         self.n_window_reads += 1
         self.max_window_cells = max(self.max_window_cells, nrows * ncols)
         try:
-            a = self._ds.read(self.band, window=win, out_dtype="float64")
+            # every window is read once and kept in our own cache, so GDAL's block cache
+            # (5 % of RAM by default) would only double the memory: keep it small
+            with rasterio.Env(GDAL_CACHEMAX=_GDAL_CACHE_BYTES):
+                a = self._ds.read(self.band, window=win, out_dtype="float64")
         except Exception as exc:
             raise DataFileError(f"cannot read raster {self.path!r} ({self.name}) at rows "
                                 f"{row0}..{row0 + nrows - 1}, cols {col0}..{col0 + ncols - 1}: "
@@ -650,8 +705,8 @@ class Surface:
         tr, tc = self.tile_shape
         ti, tj = divmod(int(key), self._ntc)
         r0, c0 = ti * tr, tj * tc
-        nr = min(tr + 1, self.height - r0)   # one-cell halo for bilinear neighbours
-        nc = min(tc + 1, self.width - c0)
+        nr = min(tr, self.height - r0)
+        nc = min(tc, self.width - c0)
         arr = self._read_window(r0, c0, nr, nc)
         entry = (arr, r0, c0)
         self._cache[key] = entry
@@ -709,12 +764,54 @@ class Surface:
         tr, tc = self.tile_shape
         i0, j0, fu, fv, key = _bilinear_prep(colf, rowf, self.width, self.height, tr, tc,
                                              self._ntc)
-        order, starts = _bucket(key, self._ntr * self._ntc)
+        # samples whose neighbours straddle tiles are split into their four cells, which
+        # join the same tile grouping, so each tile is visited once per call
+        strad = np.flatnonzero(key == -2)
+        ia, ja = i0[strad], j0[strad]
+        ib, jb = np.minimum(ia + 1, self.height - 1), np.minimum(ja + 1, self.width - 1)
+        srows = np.concatenate([ia, ia, ib, ib])
+        scols = np.concatenate([ja, jb, ja, jb])
+        n = colf.shape[0]
+        keys = np.concatenate([key, _cell_keys(srows, scols, tr, tc, self._ntc)])
+        order, starts = _bucket(keys, self._ntr * self._ntc)
+        sval = np.empty(srows.shape[0])
         for k in np.flatnonzero(np.diff(starts)):
             arr, r0, c0 = self._tile(k)
             _bilinear_tile(arr, r0, c0, self.width, self.height, i0, j0, fu, fv,
-                           order[starts[k]:starts[k + 1]], out)
+                           order[starts[k]:starts[k + 1]], n, srows, scols, out, sval)
+        if strad.size:
+            _bilinear_values(sval, fu[strad], fv[strad], out, strad)
         return out
+
+    def _sample_many(self, colf, rowf, progress=None):
+        """Bilinear values at many index positions, in tile order and bounded chunks."""
+        n = colf.shape[0]
+        if n <= _CHUNK_POINTS:
+            out = self._sample_index(colf, rowf)
+            if progress is not None:
+                progress(n, n)
+            return out
+        nt = self._ntr * self._ntc
+        tr, tc = self.tile_shape
+        keys = _point_keys(colf, rowf, self.width, self.height, tr, tc, self._ntc, nt)
+        order, _ = _bucket(keys, nt + 1)
+        del keys
+        out = np.empty(n)
+        for s in range(0, n, _CHUNK_POINTS):
+            idx = order[s:s + _CHUNK_POINTS]
+            out[idx] = self._sample_index(colf[idx], rowf[idx])
+            if progress is not None:
+                progress(min(n, s + _CHUNK_POINTS), n)
+        return out
+
+    def _to_index_chunked(self, xy):
+        n = xy.shape[0]
+        colf = np.empty(n)
+        rowf = np.empty(n)
+        for s in range(0, n, _CHUNK_POINTS):
+            colf[s:s + _CHUNK_POINTS], rowf[s:s + _CHUNK_POINTS] = \
+                self.to_index(xy[s:s + _CHUNK_POINTS])
+        return colf, rowf
 
     def sample(self, xy, *, progress=None):
         """Bilinear values at working-CRS points.
@@ -732,28 +829,28 @@ class Surface:
             NaN outside the raster and where a weighted neighbour is nodata.
         """
         xy = np.asarray(xy, dtype=np.float64).reshape(-1, 2)
-        k = xy.shape[0]
-        out = np.empty(k)
-        for s in range(0, max(k, 1), _CHUNK_POINTS):
-            e = min(k, s + _CHUNK_POINTS)
-            col, row = self.to_index(xy[s:e])
-            out[s:e] = self._sample_index(col, row)
-            if progress is not None:
-                progress(e, k)
-        return out
+        colf, rowf = self._to_index_chunked(xy)
+        return self._sample_many(colf, rowf, progress)
 
     def _link_order(self, p0, p1):
-        """Links ordered by the tile of their midpoint, so chunks reuse cached tiles."""
-        if self._ntr * self._ntc == 1:
-            return np.arange(p0.shape[0], dtype=np.int64)
-        col, row = self.to_index(0.5 * (p0 + p1))
+        """Links ordered by tile, then by 256-cell block, of their midpoint.
+
+        Consecutive chunks then reuse cached tiles, and consecutive links touch
+        nearby memory.  The order only affects speed, never results.
+        """
+        col, row = self.to_index(0.5 * (np.asarray(p0) + np.asarray(p1)))
         tr, tc = self.tile_shape
+        b = _ORDER_BLOCK
         with np.errstate(invalid="ignore"):
-            ti = np.clip(np.nan_to_num(row // tr, nan=0), 0, self._ntr - 1).astype(np.int64)
-            tj = np.clip(np.nan_to_num(col // tc, nan=0), 0, self._ntc - 1).astype(np.int64)
+            row = np.clip(np.nan_to_num(row, nan=0.0), 0, self.height - 1).astype(np.int64)
+            col = np.clip(np.nan_to_num(col, nan=0.0), 0, self.width - 1).astype(np.int64)
+        ti, tj = row // tr, col // tc
         # serpentine order over tile rows keeps neighbouring chunks adjacent
         tj = np.where(ti % 2 == 1, self._ntc - 1 - tj, tj)
-        return np.argsort(ti * self._ntc + tj, kind="stable").astype(np.int64)
+        nbr, nbc = -(-tr // b), -(-tc // b)
+        sub = ((row % tr) // b) * nbc + (col % tc) // b
+        key = (ti * self._ntc + tj) * (nbr * nbc) + sub
+        return np.argsort(key, kind="stable").astype(np.int64)
 
     def iter_crossings(self, p0, p1, outside, *, progress=None):
         """Yield chunks ``(owner, rows, cols, length_m)`` of the cells crossed by segments.
@@ -897,17 +994,21 @@ class Surface:
         d = p1 - p0
         length = np.hypot(d[:, 0], d[:, 1])
         offsets, station = _profile_stations(length, float(spacing_m))
-        owner = np.repeat(np.arange(p0.shape[0]), np.diff(offsets))
-        frac = np.divide(station, length[owner], out=np.zeros_like(station),
-                         where=length[owner] > 0)
-        z = np.empty(station.shape[0])
-        n = station.shape[0]
-        for s in range(0, max(n, 1), _CHUNK_POINTS):
-            e = min(n, s + _CHUNK_POINTS)
-            o = owner[s:e]
-            pts = p0[o] + frac[s:e, None] * d[o]
-            col, row = self.to_index(pts)
-            z[s:e] = self._sample_index(col, row)
-            if progress is not None:
-                progress(e, n)
+        if self.same_crs:
+            # the geotransform is affine: stations interpolate linearly in index space too
+            c0, r0 = self.to_index(p0)
+            c1, r1 = self.to_index(p1)
+            colf, rowf = _stations_to_index(offsets, station, length, c0, r0, c1, r1)
+        else:
+            colf = np.empty(station.shape[0])
+            rowf = np.empty(station.shape[0])
+            owner = np.repeat(np.arange(p0.shape[0]), np.diff(offsets))
+            for s in range(0, station.shape[0], _CHUNK_POINTS):
+                o = owner[s:s + _CHUNK_POINTS]
+                f = np.divide(station[s:s + _CHUNK_POINTS], length[o],
+                              out=np.zeros(o.shape[0]), where=length[o] > 0)
+                colf[s:s + _CHUNK_POINTS], rowf[s:s + _CHUNK_POINTS] = \
+                    self.to_index(p0[o] + f[:, None] * d[o])
+            del owner
+        z = self._sample_many(colf, rowf, progress)
         return offsets, station, z
