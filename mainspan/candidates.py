@@ -68,6 +68,10 @@ class Candidates:
         The builders run, joined by ``"+"``.
     n_dropped_long : int
         Links dropped because they were longer than ``max_link_m``.
+    node_order : ndarray of int64, shape (n,)
+        The sites along a Hilbert curve (:func:`spatial_order`); pass it to
+        ``prim_tree(..., node_order=...)`` to lay the graph out for memory locality (faster,
+        same result).
     """
 
     edges: np.ndarray
@@ -75,6 +79,7 @@ class Candidates:
     origin_names: tuple
     method: str
     n_dropped_long: int = 0
+    node_order: np.ndarray | None = None
 
     @property
     def n_links(self) -> int:
@@ -144,7 +149,7 @@ def _sorted_unique_pairs(a, b, n):
     return out[:w].copy()
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def _hilbert_keys(x, y, bits):
     # Iterative xy -> distance along the Hilbert curve of side 2**bits.
     side = np.int64(1) << bits
@@ -273,28 +278,163 @@ def _is_collinear(xy):
     return not ev[0] > 1e-20 * max(ev[1], 1e-300) or ev[1] == 0.0
 
 
+@numba.njit(cache=True, nogil=True)
+def _circle_side(xy, tri, x_split, eps):
+    """For each triangle: -1 if its circumcircle lies left of ``x_split - eps``, +1 if right
+    of ``x_split + eps``, 0 if it reaches the band between (or is degenerate).
+
+    Vertices are taken in increasing index order so that the same triangle always gives the
+    same rounding, whichever triangulation it came from.
+    """
+    m = tri.shape[0]
+    side = np.zeros(m, dtype=np.int8)
+    for t in range(m):
+        a = tri[t, 0]
+        b = tri[t, 1]
+        c = tri[t, 2]
+        ax = xy[a, 0]
+        ay = xy[a, 1]
+        bx = xy[b, 0] - ax
+        by = xy[b, 1] - ay
+        cx = xy[c, 0] - ax
+        cy = xy[c, 1] - ay
+        d = 2.0 * (bx * cy - by * cx)
+        if d == 0.0:
+            continue
+        b2 = bx * bx + by * by
+        c2 = cx * cx + cy * cy
+        ux = (cy * b2 - by * c2) / d
+        uy = (bx * c2 - cx * b2) / d
+        r = np.sqrt(ux * ux + uy * uy)
+        ux += ax
+        if ux + r < x_split - eps:
+            side[t] = -1
+        elif ux - r > x_split + eps:
+            side[t] = 1
+    return side
+
+
+def _qhull(xy, idx):
+    """Delaunay triangles of the points ``xy[idx]`` in global indices, rows sorted, plus the
+    global indices of the points on the hull boundary.  Points are fed to Qhull in Hilbert
+    order: inserting each point near the last keeps Qhull's point location short."""
+    from scipy.spatial import Delaunay
+
+    o = idx[spatial_order(xy[idx])]
+    tri = Delaunay(xy[o], qhull_options=_QHULL_OPTIONS)
+    return np.sort(o[tri.simplices], axis=1), np.unique(o[tri.convex_hull])
+
+
+def _qhull_split(xy):
+    """Delaunay triangles of all points from two half-plane triangulations run in parallel.
+
+    Returns ``None`` when the merge cannot be confirmed (then the caller triangulates in one
+    run).
+
+    Why the merge is exact (for points in general position).  Split at ``x = x_m`` into the
+    left half L and right half R.  A triangle of DT(L) whose circumcircle lies strictly left
+    of ``x_m`` ("safe") has no point of L inside it (Delaunay in L) and none of R (all right
+    of ``x_m``), so it belongs to DT(L u R); likewise on the right.  Let S be the vertices of
+    the unsafe triangles of both halves plus both halves' hull points.  Every other triangle
+    T of DT(L u R) has its three vertices in S: if all lie in L, T is a triangle of DT(L)
+    (its empty circle is empty in L) and unsafe; if a vertex a in L shares T with a vertex
+    in R, the centre c of T's empty circle lies in a's Voronoi cell of L, and the circle
+    centred there through a reaches past ``x_m``.  The rightmost reach ``x1 + |x - a|`` is
+    convex in the centre x, so over a bounded cell it peaks at a cell vertex -- the centre of
+    a DT(L) triangle at a whose circle therefore reaches past ``x_m``: unsafe, so a is in S;
+    an unbounded cell means a is a hull point of L, in S too (mirror argument on the right).
+    Such a T has an empty circle in S as well, so it is a triangle of DT(S); the triangles
+    of DT(S) that reach the band and whose circle holds no point of L u R are exactly the
+    missing ones.  As a guard against rounding and degenerate (cocircular) input, the result
+    must have exactly 2n - 2 - h triangles (Euler's formula, h points on the hull) and use
+    every point.
+    """
+    from concurrent.futures import ThreadPoolExecutor
+
+    from scipy.spatial import Delaunay, QhullError, cKDTree
+
+    n = xy.shape[0]
+    ox = np.argsort(xy[:, 0], kind="stable")
+    half = n // 2
+    left, right = ox[:half], ox[half:]
+    x_m = 0.5 * (xy[left[-1], 0] + xy[right[0], 0])
+    eps = 1e-9 * float(np.ptp(xy, axis=0).max())
+
+    def side_of(idx):
+        tri, hull = _qhull(xy, idx)
+        return tri, hull, _circle_side(xy, tri, x_m, eps)
+
+    try:
+        with ThreadPoolExecutor(max_workers=2) as pool:
+            fl = pool.submit(side_of, left)
+            fr = pool.submit(side_of, right)
+            tl, hl, sl = fl.result()
+            tr, hr, sr = fr.result()
+        safe = np.concatenate([tl[sl == -1], tr[sr == 1]])
+        band = np.unique(np.concatenate([tl[sl != -1].ravel(), tr[sr != 1].ravel(), hl, hr]))
+        ts_local = Delaunay(xy[band], qhull_options=_QHULL_OPTIONS)
+    except QhullError:
+        return None
+    ts = np.sort(band[ts_local.simplices], axis=1)
+    ts = ts[_circle_side(xy, ts, x_m, eps) == 0]
+    # keep the band triangles whose circumcircle holds no point (its own three lie on it)
+    a, b, c = (xy[ts[:, i]] for i in range(3))
+    bx, by = (b - a).T
+    cx, cy = (c - a).T
+    d = 2.0 * (bx * cy - by * cx)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ux = (cy * (bx * bx + by * by) - by * (cx * cx + cy * cy)) / d
+        uy = (bx * (cx * cx + cy * cy) - cx * (bx * bx + by * by)) / d
+    r = np.hypot(ux, uy)
+    ok = np.isfinite(r)
+    ts, r, centre = ts[ok], r[ok], np.stack([ux[ok], uy[ok]], axis=1) + a[ok]
+    dist, _ = cKDTree(xy, balanced_tree=False, compact_nodes=False).query(centre, k=1)
+    ts = ts[dist >= r * (1.0 - 1e-9)]
+    tri = np.concatenate([safe, ts])
+    h = np.unique(band[ts_local.convex_hull]).size
+    if tri.shape[0] != 2 * n - 2 - h or np.bincount(tri.ravel(), minlength=n).min() == 0:
+        return None
+    return tri
+
+
+def _n_cpus():
+    import os
+
+    try:
+        return len(os.sched_getaffinity(0))
+    except AttributeError:  # not on Linux
+        return os.cpu_count() or 1
+
+
+# Below this many points one Qhull run is as fast as two in parallel plus the merge.
+_SPLIT_MIN_POINTS = 200_000
+
+
 @CANDIDATE_BUILDERS.register("delaunay")
-def delaunay_links(xy, *, k=8, max_link_m=None):
+def delaunay_links(xy, *, k=8, max_link_m=None, split_min_points=None):
     """Edges of the Delaunay triangulation (Qhull), for points pre-sorted on a Hilbert curve.
 
-    Collinear points, where no triangle exists, fall back to the path along the line plus
-    ``k`` nearest neighbours; points Qhull leaves out (coincident with another point) are
-    joined to their nearest neighbour.
+    From ``split_min_points`` points on (default 200,000) the plane is cut in two halves
+    triangulated in parallel and merged exactly (see ``_qhull_split``); if the merge cannot
+    be confirmed, one Qhull run is made instead.  Collinear points, where no triangle exists,
+    fall back to the path along the line plus ``k`` nearest neighbours; points Qhull leaves
+    out (coincident with another point) are joined to their nearest neighbour.
     """
-    from scipy.spatial import Delaunay, QhullError, cKDTree
+    from scipy.spatial import QhullError, cKDTree
 
     n = xy.shape[0]
     if n < 3 or _is_collinear(xy):
         return _line_edges(xy, k)
-    order = spatial_order(xy)
-    try:
-        tri = Delaunay(xy[order], qhull_options=_QHULL_OPTIONS)
-    except QhullError:
-        return _line_edges(xy, k)
-    s = order[tri.simplices]  # back to the caller's indices
-    pairs = np.concatenate([s[:, [0, 1]], s[:, [1, 2]], s[:, [0, 2]]])
+    split_at = _SPLIT_MIN_POINTS if split_min_points is None else split_min_points
+    tri = _qhull_split(xy) if n >= max(split_at, 8) and _n_cpus() >= 2 else None
+    if tri is None:
+        try:
+            tri, _ = _qhull(xy, np.arange(n, dtype=np.int64))
+        except QhullError:
+            return _line_edges(xy, k)
+    pairs = np.concatenate([tri[:, [0, 1]], tri[:, [1, 2]], tri[:, [0, 2]]])
     used = np.zeros(n, dtype=bool)
-    used[s.ravel()] = True
+    used[tri.ravel()] = True
     missing = np.flatnonzero(~used)
     if missing.size:
         _, idx = cKDTree(xy).query(xy[missing], k=2)
@@ -496,5 +636,7 @@ def build_candidates(xy, method="delaunay", *, k=8, max_link_m=None,
     edges = np.ascontiguousarray(edges, dtype=np.int64)
     edges.setflags(write=False)
     origin.setflags(write=False)
+    node_order = spatial_order(local)
+    node_order.setflags(write=False)
     return Candidates(edges=edges, origin=origin, origin_names=tuple(names),
-                      method="+".join(names), n_dropped_long=n_dropped)
+                      method="+".join(names), n_dropped_long=n_dropped, node_order=node_order)

@@ -322,18 +322,19 @@ def _prim_kernel(n, indptr, buf, orig, roots):
     result is the same whatever internal order is used.
     """
     fb = buf.view(np.float64)
+    # best_w[v]: weight of v's best link to the tree so far; -inf once v is in the tree, so a
+    # single load tells "taken" and "not better" apart while scanning neighbours
     best_w = np.full(n, np.inf)
-    best_par = np.full(n, -1, dtype=np.int64)
+    best_par = np.full(n, -1, dtype=np.int32)
     best_edge = np.full(n, -1, dtype=np.int64)
-    pos = np.full(n, -1, dtype=np.int64)        # heap slot, -1 outside the heap
-    done = np.zeros(n, dtype=np.bool_)
+    pos = np.full(n, -1, dtype=np.int32)        # heap slot, -1 outside the heap
     hw = np.empty(n, dtype=np.float64)          # heap: key weight per slot
-    hv = np.empty(n, dtype=np.int64)            # heap: node per slot
+    hv = np.empty(n, dtype=np.int32)            # heap: node per slot
     order = np.empty(n, dtype=np.int64)
     size = 0
     count = 0
     for r in roots:
-        done[r] = True
+        best_w[r] = -np.inf
         order[count] = r
         count += 1
     nr = roots.shape[0]
@@ -375,18 +376,16 @@ def _prim_kernel(n, indptr, buf, orig, roots):
                         i = c
                     else:
                         break
-            done[u] = True
+            best_w[u] = -np.inf
             order[count] = u
             count += 1
         ou = orig[u]
         for p in range(indptr[u], indptr[u + 1]):
             slot = buf[2 * p + 1]
             v = slot >> 32
-            if done[v]:
-                continue
             wk = fb[2 * p]
             bw = best_w[v]
-            if wk > bw:
+            if wk > bw:      # also skips nodes already in the tree (bw == -inf)
                 continue
             k = slot & 0xFFFFFFFF
             if wk == bw:

@@ -302,3 +302,36 @@ def test_bad_coordinates():
 
 def test_builders_are_registered():
     assert set(CANDIDATE_BUILDERS.names()) >= {"delaunay", "knn", "radius", "complete"}
+
+
+# ------------------------------------------------------------------------------------------
+# the two-half parallel Delaunay must give the same links as one Qhull run
+# ------------------------------------------------------------------------------------------
+
+@pytest.mark.parametrize("case", ["uniform", "clustered", "grid", "grid_jittered"])
+def test_split_delaunay_equals_single_run(case):
+    from mainspan.candidates import _qhull_split, delaunay_links
+
+    rng = np.random.default_rng(13)
+    if case == "uniform":
+        xy = rng.random((2000, 2)) * 5000.0
+    elif case == "clustered":
+        centres = rng.random((8, 2)) * 5000.0
+        xy = centres[rng.integers(0, 8, 2000)] + rng.normal(0.0, 60.0, (2000, 2))
+    else:   # a square grid: every cell is cocircular, the merge must fall back or agree
+        i, j = np.meshgrid(np.arange(45), np.arange(40))
+        xy = np.stack([i.ravel(), j.ravel()], 1) * 25.0
+        if case == "grid_jittered":
+            xy = xy + rng.normal(0.0, 1.0, xy.shape)
+    n = len(xy)
+    one = normalize_edges(delaunay_links(xy, split_min_points=10**12), n)
+    two = normalize_edges(delaunay_links(xy, split_min_points=8), n)
+    if case != "grid":
+        assert _qhull_split(xy) is not None      # the merge is confirmed on general input
+        assert np.array_equal(one, two)
+    # both are triangulations that hold a Euclidean MST (Shamos & Hoey 1975); reference
+    # total from scipy's Kruskal on the full distance matrix
+    ref = minimum_spanning_tree(cdist(xy, xy)).sum()
+    for e in (one, two):
+        t = prim_tree(n, e, lengths(xy, e))
+        assert t.weight == pytest.approx(ref, rel=1e-9)
