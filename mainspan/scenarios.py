@@ -1048,22 +1048,44 @@ def _bars_html(sset):
 
 def _table_html(sset):
     s = sset.summary
-    cols = ["scenario", "description", "n_links", "total_length_m", "total_cost",
-            "jaccard_base", "n_added", "n_removed", "failed_checks",
-            *[f"cost_under_{n}" for n in sset.names]]
+    names = list(s["scenario"])
+    esc = html.escape
 
-    def cell(v):
-        if isinstance(v, (float, np.floating)):
-            return "n/a" if np.isnan(v) else ("impassable" if np.isinf(v) else f"{v:,.2f}")
-        return html.escape(str(v))
+    def num(v, fmt="{:,.1f}"):
+        v = float(v)
+        return "n/a" if np.isnan(v) else ("impassable" if np.isinf(v) else fmt.format(v))
 
-    head = "".join(f"<th>{html.escape(c)}</th>" for c in cols)
-    body = "".join("<tr>" + "".join(f"<td>{cell(s[c][i])}</td>" for c in cols) + "</tr>"
-                   for i in range(len(sset.names)))
-    note = ("<p>Columns <code>cost_under_S</code>: the cost of the row's layout priced with "
-            "scenario S's link costs. Where scenarios share candidates, each scenario's own "
-            "layout is the cheapest in its column.</p>")
-    return f"<table><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>{note}"
+    desc = "".join(f"<li><b>{esc(n)}</b>: {esc(str(d)) or '(no description)'}</li>"
+                   for n, d in zip(names, s["description"]))
+    cols = ("scenario", "links", "length m", "cost", "vs base", "Jaccard", "added",
+            "removed", "failed checks")
+    rows = []
+    base_cost = float(s["total_cost"][0])
+    for i, n in enumerate(names):
+        rel = (float(s["total_cost"][i]) / base_cost - 1) * 100 if base_cost else float("nan")
+        added = s["n_added"][i]
+        cells = (esc(n), str(s["n_links"][i]), num(s["total_length_m"][i]),
+                 num(s["total_cost"][i]), num(rel, "{:+.1f} %"),
+                 num(s["jaccard_base"][i], "{:.3f}"),
+                 str(added) if added >= 0 else "n/a",
+                 str(s["n_removed"][i]) if added >= 0 else "n/a", str(s["failed_checks"][i]))
+        rows.append("<tr>" + "".join(f"<td>{c}</td>" for c in cells) + "</tr>")
+    summary = (f"<ul>{desc}</ul><div style=\"overflow-x:auto\"><table><thead><tr>"
+               + "".join(f"<th>{c}</th>" for c in cols) + "</tr></thead><tbody>"
+               + "".join(rows) + "</tbody></table></div>")
+    head = "".join(f"<th>{esc(n)}</th>" for n in names)
+    body = "".join(
+        f"<tr><th>{esc(a)}</th>" + "".join(
+            (f"<td><b>{num(sset.regret[i, j], '{:,.0f}')}</b></td>" if i == j else
+             f"<td>{num(sset.regret[i, j], '{:,.0f}')}</td>") for j in range(len(names)))
+        + "</tr>" for i, a in enumerate(names))
+    regret = ("<p>Cost of each layout (row) priced with each scenario's link costs (column); "
+              "the own costs are in bold. Where scenarios share candidate links, each "
+              "scenario's own layout is the cheapest in its column, so the difference down a "
+              "column is what choosing another scenario's layout would cost.</p>"
+              f"<div style=\"overflow-x:auto\"><table><thead><tr><th>layout \\ costs</th>"
+              f"{head}</tr></thead><tbody>{body}</tbody></table></div>")
+    return summary + regret
 
 
 def report_sections(sset):

@@ -309,7 +309,10 @@ def test_report_sections(sset, tmp_path):
     assert secs[1][1].count("data:image/png;base64,") == 1
     path = write_report(sset["base"], tmp_path / "r.html", extra_sections=secs)
     text = open(path, encoding="utf-8").read()
-    assert "cost_under_strip" in text and "Scenario layouts" in text
+    assert "Scenario layouts" in text and "layout \\ costs" in text
+    # the regret matrix as printed: own cost of the strip layout in bold
+    own = sset.regret[sset.names.index("strip"), sset.names.index("strip")]
+    assert f"<b>{own:,.0f}</b>" in text
 
 
 def test_unknown_scenario_name(project):
