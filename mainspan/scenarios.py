@@ -926,33 +926,35 @@ def write_scenarios(sset, path, *, overwrite=False):
 
 
 def format_table(sset) -> str:
-    """Fixed-width comparison table: one row per scenario."""
+    """Fixed-width comparison table: one row per scenario, then the regret matrix."""
     s = sset.summary
     names = list(s["scenario"])
     w = max(8, *(len(n) for n in names))
-    head = (f"{'scenario':<{w}} {'links':>6} {'length m':>11} {'cost':>14} {'vs base':>8} "
-            f"{'jaccard':>7} {'+/-':>9} {'fails':>5}")
-    lines = [head, "-" * len(head)]
     base_cost = s["total_cost"][0]
+    cost_txt = [f"{v:,.1f}" for v in s["total_cost"]]
+    rel_txt = [f"{(v / base_cost - 1.0) * 100:+.1f}%" if base_cost else "n/a"
+               for v in s["total_cost"]]
+    pm_txt = [f"+{a}/-{r}" if a >= 0 else "n/a" for a, r in zip(s["n_added"], s["n_removed"])]
+    cw = max(14, *(len(t) for t in cost_txt))
+    rw = max(8, *(len(t) for t in rel_txt))
+    pw = max(9, *(len(t) for t in pm_txt))
+    head = (f"{'scenario':<{w}} {'links':>6} {'length m':>11} {'cost':>{cw}} "
+            f"{'vs base':>{rw}} {'jaccard':>7} {'+/-':>{pw}} {'fails':>5}")
+    lines = [head, "-" * len(head)]
     for i, n in enumerate(names):
-        rel = (s["total_cost"][i] / base_cost - 1.0) * 100 if base_cost else float("nan")
         jac = s["jaccard_base"][i]
-        pm = f"+{s['n_added'][i]}/-{s['n_removed'][i]}" if s["n_added"][i] >= 0 else "n/a"
         lines.append(f"{n:<{w}} {s['n_links'][i]:>6d} {s['total_length_m'][i]:>11,.1f} "
-                     f"{s['total_cost'][i]:>14,.1f} {rel:>+7.1f}% "
-                     f"{'n/a' if np.isnan(jac) else f'{jac:.3f}':>7} {pm:>9} "
+                     f"{cost_txt[i]:>{cw}} {rel_txt[i]:>{rw}} "
+                     f"{'n/a' if np.isnan(jac) else f'{jac:.3f}':>7} {pm_txt[i]:>{pw}} "
                      f"{s['failed_checks'][i]:>5d}")
-    lines.append("")
-    lines.append("cost of each layout (row) under each scenario's link costs (column):")
-    cw = max(12, w)
-    lines.append(f"{'':<{w}} " + " ".join(f"{n[:cw]:>{cw}}" for n in names))
+    lines += ["", "cost of each layout (row) under each scenario's link costs (column):"]
+    cells = [["n/a" if np.isnan(v) else ("impassable" if np.isinf(v) else f"{v:,.0f}")
+              for v in row] for row in sset.regret]
+    mw = max(10, *(len(n) for n in names), *(len(c) for row in cells for c in row)) + 1
+    lines.append(f"{'':<{w}} " + "".join(f"{n:>{mw}} " for n in names))
     for i, n in enumerate(names):
-        cells = []
-        for j in range(len(names)):
-            v = sset.regret[i, j]
-            txt = "n/a" if np.isnan(v) else ("impassable" if np.isinf(v) else f"{v:,.0f}")
-            cells.append(f"{txt:>{cw}}" + ("*" if i == j else ""))
-        lines.append(f"{n:<{w}} " + " ".join(cells))
+        lines.append(f"{n:<{w}} " + "".join(f"{c:>{mw}}" + ("*" if i == j else " ")
+                                            for j, c in enumerate(cells[i])))
     lines.append("(* own costs; a tree is cheapest under its own costs when candidates are shared)")
     wk = sset.work
     lines.append(f"shared work: {wk['sites_reads']} sites read(s), {wk['candidate_builds']} "
@@ -961,7 +963,7 @@ def format_table(sset) -> str:
     if sset.stability_runs:
         lines.append(f"stability: {sset.stability_runs} run(s) per scenario, land cost "
                      f"±{sset.perturb_pct:g} % per link, seed {sset.seed}")
-    return "\n".join(lines)
+    return "\n".join(line.rstrip() for line in lines)
 
 
 # ------------------------------------------------------------------------------ report
