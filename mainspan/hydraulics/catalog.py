@@ -1,0 +1,260 @@
+"""Pipe catalogs: the sizes a design may choose from.
+
+A :class:`PipeCatalog` is a struct of arrays sorted by inner diameter (then
+cost, then name), so "the smallest pipe that works" is the first feasible
+column of a links × pipes table.
+
+References
+----------
+.. [1] ISO 4427-2:2019 / EN 12201-2:2011+A1:2013, polyethylene pipes for
+   water supply -- dimensions of PE100 SDR11 (PN16) pipes.
+.. [2] USDA NRCS Conservation Practice Standard 430, Irrigation Pipeline --
+   Hazen–Williams C = 150 for plastic pipe.
+.. [3] Great Lakes–Upper Mississippi River Board, *Recommended Standards for
+   Wastewater Facilities*, 2014 -- n = 0.013, sewer sizes 200–900 mm.
+"""
+
+from __future__ import annotations
+
+import csv
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from ..errors import DataFileError, InputError
+from .friction import G
+
+__all__ = ["PipeCatalog", "default_catalog", "default_gravity_catalog", "read_catalog"]
+
+#: Water density used to turn a PN rating (bar) into head (m).
+_RHO_RATING = 1000.0
+
+
+@dataclass(frozen=True)
+class PipeCatalog:
+    """Pipes available to a design (arrays of equal length P).
+
+    Attributes
+    ----------
+    name : ndarray of str
+    nominal_mm : ndarray of float
+        Nominal size (outside diameter for PE, bore for sewer pipe).
+    inner_mm : ndarray of float
+        Hydraulic (inner) diameter.
+    roughness_mm : ndarray of float
+        Absolute roughness for Darcy–Weisbach (NaN if not known).
+    hw_c : ndarray of float
+        Hazen–Williams C (NaN if not known).
+    rating_m : ndarray of float
+        Allowable pressure as head of water, m (NaN for non-pressure pipe).
+    cost_per_m : ndarray of float
+        Supply-and-lay price per metre.
+    material : ndarray of str
+    manning_n : ndarray of float
+        Manning's n for gravity flow (NaN: use the design default).
+    """
+
+    name: np.ndarray
+    nominal_mm: np.ndarray
+    inner_mm: np.ndarray
+    roughness_mm: np.ndarray
+    hw_c: np.ndarray
+    rating_m: np.ndarray
+    cost_per_m: np.ndarray
+    material: np.ndarray
+    manning_n: np.ndarray | None = None
+
+    def __post_init__(self):
+        arrays = {}
+        for f in ("nominal_mm", "inner_mm", "roughness_mm", "hw_c", "rating_m", "cost_per_m"):
+            arrays[f] = np.atleast_1d(np.asarray(getattr(self, f), dtype=np.float64))
+        name = np.atleast_1d(np.asarray(self.name, dtype=object))
+        material = np.atleast_1d(np.asarray(self.material, dtype=object))
+        p = name.size
+        if p == 0:
+            raise InputError("pipe catalog is empty; give at least one pipe")
+        mn = self.manning_n
+        arrays["manning_n"] = np.full(p, np.nan) if mn is None else np.atleast_1d(np.asarray(mn, dtype=np.float64))
+        for f, arr in {**arrays, "material": material}.items():
+            if arr.shape != (p,):
+                raise InputError(f"pipe catalog field '{f}' has {arr.size} values for {p} pipes; give one per pipe")
+        if len(set(name.tolist())) != p:
+            raise InputError("pipe catalog repeats a pipe name; give each pipe a unique name")
+        for f, allow_nan in (("nominal_mm", False), ("inner_mm", False), ("cost_per_m", False),
+                             ("roughness_mm", True), ("hw_c", True), ("rating_m", True), ("manning_n", True)):
+            arr = arrays[f]
+            ok = np.isfinite(arr) & ((arr >= 0) if f in ("roughness_mm", "cost_per_m") else (arr > 0))
+            if allow_nan:
+                ok |= np.isnan(arr)
+            bad = np.flatnonzero(~ok)
+            if bad.size:
+                raise InputError(
+                    f"pipe catalog field '{f}' of pipe '{name[bad[0]]}' is {arr[bad[0]]}; give a positive number"
+                )
+        order = np.lexsort((name.astype(str), arrays["cost_per_m"], arrays["inner_mm"]))
+        object.__setattr__(self, "name", name[order])
+        object.__setattr__(self, "material", material[order])
+        for f, arr in arrays.items():
+            object.__setattr__(self, f, arr[order])
+
+    def __len__(self):
+        return int(self.name.size)
+
+
+def default_catalog() -> PipeCatalog:
+    """PE100 SDR11 (PN16) water pipe, 32–400 mm outside diameter.
+
+    Inner diameter = OD − 2 × minimum wall (ISO 4427-2 / EN 12201-2).
+    Hazen–Williams C 150 for plastic pipe (NRCS standard 430).  Roughness
+    0.007 mm (common practice for new PE, no single source).  Rating PN16 =
+    16 bar = 163.2 m of water.  **Prices are invented placeholders for the
+    demo** (2 + 0.00095·OD² per metre); replace them with local rates.
+
+    Examples
+    --------
+    >>> cat = default_catalog()
+    >>> cat.name[0], float(cat.inner_mm[0]), round(float(cat.rating_m[0]), 1)
+    ('PE100 SDR11 32', 26.0, 163.2)
+    """
+    od = np.array([32, 40, 50, 63, 75, 90, 110, 125, 140, 160, 200, 250, 315, 400], dtype=np.float64)
+    wall = np.array([3.0, 3.7, 4.6, 5.8, 6.8, 8.2, 10.0, 11.4, 12.7, 14.6, 18.2, 22.7, 28.6, 36.3])
+    p = od.size
+    return PipeCatalog(
+        name=np.array([f"PE100 SDR11 {int(d)}" for d in od], dtype=object),
+        nominal_mm=od,
+        inner_mm=np.round(od - 2.0 * wall, 6),
+        roughness_mm=np.full(p, 0.007),
+        hw_c=np.full(p, 150.0),
+        rating_m=np.full(p, 16.0e5 / (_RHO_RATING * G)),
+        cost_per_m=np.round(2.0 + 0.00095 * od**2, 2),
+        material=np.full(p, "PE100", dtype=object),
+        manning_n=np.full(p, 0.010),
+    )
+
+
+def default_gravity_catalog() -> PipeCatalog:
+    """Sewer pipe 200–900 mm nominal bore for gravity mains.
+
+    The nominal bore is used as the hydraulic diameter (common practice for
+    preliminary design, no single source).  PVC up to 375 mm, concrete from
+    450 mm; Manning's n 0.013 for both (Recommended Standards for Wastewater
+    Facilities, 2014).  **Prices are invented placeholders for the demo.**
+
+    Examples
+    --------
+    >>> cat = default_gravity_catalog()
+    >>> cat.nominal_mm.tolist()[:3]
+    [200.0, 250.0, 300.0]
+    """
+    d = np.array([200, 250, 300, 375, 450, 525, 600, 675, 750, 900], dtype=np.float64)
+    material = np.where(d <= 375, "PVC", "concrete").astype(object)
+    p = d.size
+    return PipeCatalog(
+        name=np.array([f"{m} {int(x)}" for m, x in zip(material, d)], dtype=object),
+        nominal_mm=d,
+        inner_mm=d.copy(),
+        roughness_mm=np.where(d <= 375, 0.0015, 0.3),
+        hw_c=np.where(d <= 375, 150.0, 120.0),
+        rating_m=np.full(p, np.nan),
+        cost_per_m=np.round(15.0 + 0.0005 * d**2, 2),
+        material=material,
+        manning_n=np.full(p, 0.013),
+    )
+
+
+_REQUIRED = ("name", "nominal_mm", "inner_mm", "cost_per_m", "material")
+
+
+def read_catalog(csv_path) -> PipeCatalog:
+    """Read a pipe catalog from a CSV file.
+
+    Columns (header row, any order): ``name``, ``nominal_mm``, ``inner_mm``,
+    ``cost_per_m``, ``material`` (all required); ``roughness_mm`` and/or
+    ``hw_c`` and/or ``manning_n`` (at least one, per row); ``rating_m`` or
+    ``pn_bar`` (optional, empty = not a pressure pipe).
+
+    Raises
+    ------
+    DataFileError
+        Naming the file, line and column of the first bad value.
+    """
+    path = Path(csv_path)
+    try:
+        with path.open(newline="", encoding="utf-8-sig") as fh:
+            rows = list(csv.reader(fh))
+    except OSError as exc:
+        raise DataFileError(f"pipe catalog {path}: cannot read ({exc.strerror or exc}); check the path") from None
+    except UnicodeDecodeError:
+        raise DataFileError(f"pipe catalog {path}: not UTF-8 text; save the catalog as UTF-8 CSV") from None
+    if not rows:
+        raise DataFileError(f"pipe catalog {path}: file is empty; add a header row and one row per pipe")
+    header = [h.strip().lower() for h in rows[0]]
+    col = {h: i for i, h in enumerate(header)}
+    for c in _REQUIRED:
+        if c not in col:
+            raise DataFileError(f"pipe catalog {path}: missing column '{c}'; the header must include {', '.join(_REQUIRED)}")
+    if not ({"roughness_mm", "hw_c", "manning_n"} & col.keys()):
+        raise DataFileError(f"pipe catalog {path}: no friction column; add 'roughness_mm', 'hw_c' or 'manning_n'")
+    if "rating_m" in col and "pn_bar" in col:
+        raise DataFileError(f"pipe catalog {path}: both 'rating_m' and 'pn_bar' given; keep one")
+    out = {k: [] for k in ("name", "nominal_mm", "inner_mm", "roughness_mm", "hw_c", "rating_m", "cost_per_m", "material", "manning_n")}
+    seen = {}
+    body = [(i + 2, r) for i, r in enumerate(rows[1:]) if any(x.strip() for x in r)]
+    if not body:
+        raise DataFileError(f"pipe catalog {path}: no pipes after the header; add one row per pipe")
+    for line, r in body:
+        def cell(c):
+            i = col.get(c)
+            return r[i].strip() if i is not None and i < len(r) else ""
+
+        def number(c, *, required, positive=True):
+            s = cell(c)
+            if s == "":
+                if required:
+                    raise DataFileError(f"pipe catalog {path}, line {line}, column '{c}': empty; give a number")
+                return np.nan
+            try:
+                x = float(s)
+            except ValueError:
+                raise DataFileError(f"pipe catalog {path}, line {line}, column '{c}': '{s}' is not a number; give a number") from None
+            if not np.isfinite(x) or x < 0 or (positive and x == 0):
+                raise DataFileError(
+                    f"pipe catalog {path}, line {line}, column '{c}': {s} must be {'> 0' if positive else '>= 0'}; fix the value"
+                )
+            return x
+
+        name = cell("name")
+        if not name:
+            raise DataFileError(f"pipe catalog {path}, line {line}, column 'name': empty; give each pipe a name")
+        if name in seen:
+            raise DataFileError(f"pipe catalog {path}, line {line}, column 'name': '{name}' already on line {seen[name]}; use unique names")
+        seen[name] = line
+        nominal = number("nominal_mm", required=True)
+        inner = number("inner_mm", required=True)
+        if inner > nominal * 1.5:
+            raise DataFileError(
+                f"pipe catalog {path}, line {line}, column 'inner_mm': {inner} is far above nominal {nominal}; check the units (mm)"
+            )
+        rough = number("roughness_mm", required=False, positive=False)
+        c = number("hw_c", required=False)
+        n = number("manning_n", required=False)
+        if np.isnan(rough) and np.isnan(c) and np.isnan(n):
+            raise DataFileError(f"pipe catalog {path}, line {line}, column 'roughness_mm': no friction value; give roughness_mm, hw_c or manning_n")
+        if "pn_bar" in col:
+            pn = number("pn_bar", required=False)
+            rating = pn * 1e5 / (_RHO_RATING * G)
+        else:
+            rating = number("rating_m", required=False)
+        material = cell("material")
+        if not material:
+            raise DataFileError(f"pipe catalog {path}, line {line}, column 'material': empty; name the material")
+        for k, v in (("name", name), ("nominal_mm", nominal), ("inner_mm", inner), ("roughness_mm", rough), ("hw_c", c),
+                     ("rating_m", rating), ("cost_per_m", number("cost_per_m", required=True, positive=False)),
+                     ("material", material), ("manning_n", n)):
+            out[k].append(v)
+    return PipeCatalog(
+        name=np.array(out["name"], dtype=object),
+        material=np.array(out["material"], dtype=object),
+        **{k: np.array(v, dtype=np.float64) for k, v in out.items() if k not in ("name", "material")},
+    )

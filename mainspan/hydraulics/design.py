@@ -1,0 +1,661 @@
+"""The engineering stage: one call that orients, sizes and checks a tree of mains.
+
+:func:`design_network` takes the spanning tree as plain link arrays and
+returns per-link and per-node fields, a bill of quantities, a summary and
+one line per failed check.  See :class:`DesignSettings` for every option.
+
+Conventions
+-----------
+* Links are oriented away from the root: ``from_node`` is the end nearer
+  the root (the source of a pressure system, the outlet of a gravity
+  system).  Links given the other way round are turned (``reversed`` field)
+  and their ground profiles flipped.
+* Pressure: flow runs from→to; ``hgl_from_m``/``hgl_to_m`` are at those ends.
+* Gravity: flow runs to→from; ``invert_up_m`` is at ``to_node`` (upstream)
+  and ``invert_down_m`` at ``from_node`` (downstream).
+* Pipe length: the surface length for pressure mains (laid at constant
+  cover); the true length along the grade line for gravity mains.
+* Trench cost = ``trench_cost_per_m3`` × width × depth × length, with width
+  = nominal size + 2 × ``trench_side_clearance_m`` and depth to the bottom
+  of the bedding (pressure: cover + nominal size + bedding; gravity: mean
+  depth to invert along the profile + bedding).  Common practice, no single
+  source; prices are placeholders.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, fields
+
+import numpy as np
+
+from ..errors import InputError
+from ..network import FLOW_FROM_TO, FLOW_TO_FROM, accumulate, design_flow_lps, rooted_network
+from .catalog import PipeCatalog, default_catalog, default_gravity_catalog
+from .friction import water_kinematic_viscosity_m2ps
+from .gravity import MIN_SLOPE_TABLE_PCT, depth_ratio_for_flow, full_pipe, min_slope, part_full_section, walk_inverts
+from .pressure import HEADLOSS_METHODS, hydraulic_grade, size_pressure
+
+__all__ = ["CAUTION", "SYSTEMS", "DesignSettings", "DesignResult", "design_network"]
+
+#: Systems :func:`design_network` can design.
+SYSTEMS = ("pressure", "gravity")
+
+CAUTION = (
+    "These results are preliminary design aids: have them checked by a licensed engineer against local codes and "
+    "utility standards before use. Locate existing services before any digging. Trenches deeper than about 1.5 m "
+    "need shoring or battering under most safety rules."
+)
+
+
+@dataclass(frozen=True)
+class DesignSettings:
+    """Every option of the engineering stage, with defaults.
+
+    Common
+    ------
+    peaking_factor : float, default=1.0
+        Design flow = peaking_factor × accumulated demand.
+    min_flow_lps : float, default=0.0
+        Floor on every link's design flow.
+    trench_cost_per_m3 : float, default=25.0
+        Excavation price per m³ (placeholder demo price).
+    trench_side_clearance_m : float, default=0.3
+        Working space each side of the pipe (common practice).
+    bedding_m : float, default=0.1
+        Bedding below the pipe (common practice).
+
+    Pressure mains
+    --------------
+    pressure_catalog : PipeCatalog or None, default=None
+        None: :func:`default_catalog` (PE100 SDR11 PN16).
+    headloss_method : {"colebrook", "swamee_jain", "hazen_williams"}, default="colebrook"
+    water_temperature_c : float, default=20.0
+        For the viscosity (0–40 °C).
+    velocity_max_mps : float, default=1.5
+        Velocity cap (≈ 5 ft/s, common practice).
+    headloss_max_m_per_km : float or None, default=10.0
+        Head-loss gradient budget (common practice for distribution mains,
+        no single source); None disables it.
+    minor_loss_factor : float, default=0.1
+        Minor losses as a fraction of friction loss (common practice).
+    min_pressure_m : float, default=14.0
+        Minimum service pressure head (20 psi, Recommended Standards for
+        Water Works §8.2.1).
+    source_head_m : None, float or tuple of float, default=None
+        HGL at each source, m above datum; None solves the lowest HGL per
+        source meeting ``min_pressure_m`` everywhere.
+    pressure_cover_m : float, default=0.9
+        Cover over pressure mains, for the trench (common practice).
+
+    Gravity mains
+    -------------
+    gravity_catalog : PipeCatalog or None, default=None
+        None: :func:`default_gravity_catalog` (200–900 mm).
+    manning_n : float, default=0.013
+        Used for pipes whose catalog n is missing (Recommended Standards for
+        Wastewater Facilities).
+    gravity_min_diameter_mm : float, default=200.0
+        Smallest nominal size allowed (8 in, same standard).
+    gravity_min_velocity_mps : float, default=0.6
+        Minimum velocity flowing full (2 ft/s, same standard); also the
+        self-cleansing check at design flow.
+    gravity_min_slope_table_pct : tuple of (mm, %) pairs, default=MIN_SLOPE_TABLE_PCT
+        Minimum slope by nominal diameter (same standard).
+    gravity_cover_m : float, default=0.9
+        Minimum cover over the crown (common practice; local codes differ).
+    gravity_max_depth_m : float, default=6.0
+        Deeper than this (to invert) flags ``too_deep`` (lift station).
+    junction_drop_m : float, default=0.03
+        Invert drop across a junction (common practice).
+    access_spacing_m : float, default=120.0
+        Maximum distance between access points (400 ft, same standard).
+    """
+
+    peaking_factor: float = 1.0
+    min_flow_lps: float = 0.0
+    trench_cost_per_m3: float = 25.0
+    trench_side_clearance_m: float = 0.3
+    bedding_m: float = 0.1
+    pressure_catalog: PipeCatalog | None = None
+    headloss_method: str = "colebrook"
+    water_temperature_c: float = 20.0
+    velocity_max_mps: float = 1.5
+    headloss_max_m_per_km: float | None = 10.0
+    minor_loss_factor: float = 0.1
+    min_pressure_m: float = 14.0
+    source_head_m: float | tuple | None = None
+    pressure_cover_m: float = 0.9
+    gravity_catalog: PipeCatalog | None = None
+    manning_n: float = 0.013
+    gravity_min_diameter_mm: float = 200.0
+    gravity_min_velocity_mps: float = 0.6
+    gravity_min_slope_table_pct: tuple = MIN_SLOPE_TABLE_PCT
+    gravity_cover_m: float = 0.9
+    gravity_max_depth_m: float = 6.0
+    junction_drop_m: float = 0.03
+    access_spacing_m: float = 120.0
+
+    def __post_init__(self):
+        rules = {
+            "peaking_factor": ("> 0", "use 1.0 for no peaking"),
+            "min_flow_lps": (">= 0", "use 0 for no floor"),
+            "trench_cost_per_m3": (">= 0", "give a price per cubic metre"),
+            "trench_side_clearance_m": (">= 0", "give the working space each side in metres"),
+            "bedding_m": (">= 0", "give the bedding depth in metres"),
+            "velocity_max_mps": ("> 0", "set a positive velocity"),
+            "minor_loss_factor": (">= 0", "use 0 to ignore minor losses"),
+            "min_pressure_m": (">= 0", "give the minimum pressure head in metres"),
+            "pressure_cover_m": (">= 0", "give the cover in metres"),
+            "manning_n": ("> 0", "use 0.013 for sewer pipe"),
+            "gravity_min_diameter_mm": ("> 0", "use 200 mm"),
+            "gravity_min_velocity_mps": (">= 0", "use 0.6 m/s"),
+            "gravity_cover_m": (">= 0", "give the minimum cover in metres"),
+            "gravity_max_depth_m": ("> 0", "give the deepest invert allowed in metres"),
+            "junction_drop_m": (">= 0", "use 0.03 m"),
+            "access_spacing_m": ("> 0", "use 120 m"),
+        }
+        for name, (rule, fix) in rules.items():
+            _check_number(name, getattr(self, name), rule, fix)
+        if self.headloss_max_m_per_km is not None:
+            _check_number("headloss_max_m_per_km", self.headloss_max_m_per_km, "> 0", "give m per km, or None to disable")
+        t = self.water_temperature_c
+        _check_number("water_temperature_c", t, ">= 0", "give the water temperature in °C (0 to 40)")
+        if t > 40:
+            raise InputError(f"design option 'water_temperature_c' must be <= 40 °C, got {t}; the viscosity correlation covers 0 to 40 °C")
+        if self.headloss_method not in HEADLOSS_METHODS:
+            raise InputError(
+                f"design option 'headloss_method' is '{self.headloss_method}'; choose one of {', '.join(HEADLOSS_METHODS)}"
+            )
+        if self.source_head_m is not None:
+            vals = np.atleast_1d(np.asarray(self.source_head_m, dtype=np.float64))
+            if vals.ndim != 1 or not np.all(np.isfinite(vals)):
+                raise InputError(
+                    f"design option 'source_head_m' must be a number or one number per source, got {self.source_head_m!r}; "
+                    "give the HGL in metres above datum, or None to solve it"
+                )
+        tab = np.asarray(self.gravity_min_slope_table_pct, dtype=np.float64)
+        if tab.ndim != 2 or tab.shape[1] != 2 or tab.shape[0] < 1 or not np.all(np.isfinite(tab)) or np.any(tab <= 0):
+            raise InputError(
+                "design option 'gravity_min_slope_table_pct' must be pairs of (diameter_mm, slope_pct) > 0, "
+                f"got {self.gravity_min_slope_table_pct!r}; give e.g. ((200, 0.4), (250, 0.28))"
+            )
+        for name in ("pressure_catalog", "gravity_catalog"):
+            cat = getattr(self, name)
+            if cat is not None and not isinstance(cat, PipeCatalog):
+                raise InputError(f"design option '{name}' must be a PipeCatalog or None, got {type(cat).__name__}; use read_catalog(path)")
+
+
+def _check_number(name, value, rule, fix):
+    try:
+        x = float(value)
+    except (TypeError, ValueError):
+        raise InputError(f"design option '{name}' must be a number, got {value!r}; {fix}") from None
+    ok = np.isfinite(x) and (x > 0 if rule == "> 0" else x >= 0)
+    if not ok:
+        raise InputError(f"design option '{name}' must be {rule}, got {value}; {fix}")
+
+
+@dataclass
+class DesignResult:
+    """Output of :func:`design_network`.
+
+    Attributes
+    ----------
+    system : str
+        "pressure" or "gravity".
+    link_fields : dict of str to ndarray (length L, in the input link order)
+        Always: from_node, to_node (oriented), reversed, flow_lps,
+        design_flow_lps, flow_direction, pipe, material, diameter_mm (inner),
+        nominal_mm, velocity_mps, pipe_length_m, trench_depth_m, pipe_cost,
+        trench_cost, land_cost, checks.  Pressure adds headloss_m,
+        hgl_from_m, hgl_to_m, pressure_min_m, rating_m.  Gravity adds
+        manning_n, invert_up_m, invert_down_m, slope_pct, min_slope_pct,
+        depth_max_m, cover_min_m, capacity_lps, velocity_full_mps,
+        depth_ratio, n_access_points.
+    node_fields : dict of str to ndarray (length n)
+        Always: hops_to_root, checks.  Pressure: hgl_m, pressure_head_m,
+        static_head_m.  Gravity: invert_m, depth_m.
+    quantities : dict of str to ndarray
+        Bill of quantities, one row per catalog pipe used plus a final
+        "TOTAL" row: pipe, material, nominal_mm, inner_mm, count, length_m,
+        pipe_cost, trench_cost, land_cost, total_cost.
+    access_points : dict of str to ndarray
+        Gravity only (empty arrays otherwise): link, chainage_m (from the
+        link's from_node), x, y, ground_m, invert_m.
+    summary : dict
+        Totals, source heads or outlet inverts, counts of failing checks by
+        kind (``failing_checks``), ``notes`` and the ``caution`` text.
+    failures : list of str
+        One line per failed check naming the link or node.
+    """
+
+    system: str
+    link_fields: dict
+    node_fields: dict
+    quantities: dict
+    access_points: dict
+    summary: dict
+    failures: list = field(default_factory=list)
+    caution: str = CAUTION
+
+
+def _float_array(name, value, shape, *, allow_nan=False, min_value=None, strict=False):
+    try:
+        arr = np.asarray(value, dtype=np.float64)
+    except (TypeError, ValueError):
+        raise InputError(f"design input '{name}' must be numeric; pass a float array") from None
+    if arr.shape != shape:
+        raise InputError(f"design input '{name}' must have shape {shape}, got {arr.shape}; pass one value per entry")
+    bad = ~np.isfinite(arr)
+    if allow_nan:
+        bad &= ~np.isnan(arr)
+    if min_value is not None:
+        with np.errstate(invalid="ignore"):
+            bad |= (arr <= min_value) if strict else (arr < min_value)
+    idx = np.flatnonzero(bad)
+    if idx.size:
+        rule = "finite" if min_value is None else f"finite and {'>' if strict else '>='} {min_value}"
+        raise InputError(f"design input '{name}' entry {idx[0]} is {arr[idx[0]]}; it must be {rule}")
+    return arr
+
+
+def _oriented_profiles(net, length_m, ground, profile_offsets, profile_station_m, profile_ground_m):
+    """Per-link profile CSR, stations from the oriented from_node, node grounds at both ends, sorted."""
+    L = net.n_links
+    a, b = net.from_node, net.to_node
+    if profile_offsets is None:
+        off = np.arange(0, 2 * L + 1, 2, dtype=np.int64)
+        st = np.empty(2 * L)
+        st[0::2], st[1::2] = 0.0, length_m
+        gr = np.empty(2 * L)
+        gr[0::2], gr[1::2] = ground[a], ground[b]
+        return off, st, gr
+    off_in = np.asarray(profile_offsets, dtype=np.int64)
+    if off_in.shape != (L + 1,) or off_in[0] != 0 or np.any(np.diff(off_in) < 0):
+        raise InputError(
+            f"design input 'profile_offsets' must be {L + 1} non-decreasing offsets starting at 0; pass the CSR offsets of the link profiles"
+        )
+    total = int(off_in[-1])
+    st_in = _float_array("profile_station_m", profile_station_m, (total,), min_value=0.0)
+    gr_in = _float_array("profile_ground_m", profile_ground_m, (total,))
+    link = np.repeat(np.arange(L), np.diff(off_in))
+    tol = 1e-6 * np.maximum(length_m, 1.0)
+    over = np.flatnonzero(st_in > length_m[link] + tol[link])
+    if over.size:
+        k = link[over[0]]
+        raise InputError(
+            f"profile station {st_in[over[0]]} m of link {k} is beyond its plan length {length_m[k]} m; stations run from from_node along the link"
+        )
+    st_in = np.where(net.reversed[link], length_m[link] - st_in, st_in)
+    inner = (st_in > tol[link]) & (st_in < length_m[link] - tol[link])
+    link_i, st_i, gr_i = link[inner], st_in[inner], gr_in[inner]
+    st_all = np.concatenate([np.zeros(L), length_m, st_i])
+    gr_all = np.concatenate([ground[a], ground[b], gr_i])
+    link_all = np.concatenate([np.arange(L), np.arange(L), link_i])
+    srt = np.lexsort((st_all, link_all))
+    off = np.zeros(L + 1, np.int64)
+    np.cumsum(np.bincount(link_all, minlength=L), out=off[1:])
+    return off, st_all[srt], gr_all[srt]
+
+
+def _segment_mean(off, station, value):
+    """Length-weighted mean of a piecewise-linear profile value per link (trapezoid rule)."""
+    L = off.size - 1
+    link = np.repeat(np.arange(L), np.diff(off))
+    same = link[1:] == link[:-1]
+    ds = np.where(same, np.diff(station), 0.0)
+    area = ds * (value[1:] + value[:-1]) / 2.0
+    tot = np.bincount(link[1:], weights=area, minlength=L)
+    span = np.bincount(link[1:], weights=ds, minlength=L)
+    return np.where(span > 0, tot / np.where(span > 0, span, 1.0), value[off[:-1]])
+
+
+def design_network(
+    system,
+    *,
+    xy,
+    elevation_m,
+    demand_lps,
+    node_id,
+    from_node,
+    to_node,
+    length_m,
+    surface_length_m,
+    roots,
+    profile_offsets=None,
+    profile_station_m=None,
+    profile_ground_m=None,
+    land_cost=None,
+    settings: DesignSettings | None = None,
+) -> DesignResult:
+    """Orient, size and check a tree of pressure or gravity mains.
+
+    Parameters
+    ----------
+    system : {"pressure", "gravity"}
+    xy : array_like, shape (n, 2)
+        Node coordinates, m (used to place access points).
+    elevation_m : array_like, shape (n,)
+        Ground level at the nodes.  All NaN: pressure design assumes flat
+        ground at 0 m (noted in the summary); gravity design refuses.
+    demand_lps : array_like, shape (n,)
+        Demand (pressure) or inflow (gravity) at each node, L/s, >= 0.
+    node_id : sequence of str, length n
+        User ids, for messages.
+    from_node, to_node : array_like of int, shape (L,)
+        Tree links (either direction; see module notes).
+    length_m, surface_length_m : array_like, shape (L,)
+        Plan and surface length of each link.
+    roots : array_like of int
+        Sources (pressure) or outlets (gravity), one per tree.
+    profile_offsets, profile_station_m, profile_ground_m : array_like, optional
+        Ground profile along each link in CSR form; stations measured from
+        the given ``from_node``.  Without them the ground is taken as
+        straight between the end nodes.
+    land_cost : array_like, shape (L,), optional
+        Land or easement cost per link, carried into the quantities.
+    settings : DesignSettings, optional
+
+    Returns
+    -------
+    DesignResult
+
+    Raises
+    ------
+    InputError
+        On malformed inputs or settings, naming the field and entry.
+
+    References
+    ----------
+    .. [1] Recommended Standards for Water Works, §8.2.1 (minimum pressure).
+    .. [2] Recommended Standards for Wastewater Facilities, 2014 (gravity sewers).
+    """
+    s = DesignSettings() if settings is None else settings
+    if not isinstance(s, DesignSettings):
+        raise InputError(f"design option 'settings' must be a DesignSettings, got {type(s).__name__}; build one with DesignSettings(...)")
+    if system not in SYSTEMS:
+        raise InputError(f"design option 'system' is {system!r}; choose 'pressure' or 'gravity'")
+    xy = np.asarray(xy, dtype=np.float64)
+    if xy.ndim != 2 or xy.shape[1] != 2:
+        raise InputError(f"design input 'xy' must have shape (n, 2), got {xy.shape}; pass node coordinates in metres")
+    n = xy.shape[0]
+    xy = _float_array("xy", xy, (n, 2))
+    elev = _float_array("elevation_m", elevation_m, (n,), allow_nan=True)
+    demand = _float_array("demand_lps", demand_lps, (n,), min_value=0.0)
+    ids = np.asarray(node_id, dtype=object).astype(str)
+    if ids.shape != (n,):
+        raise InputError(f"design input 'node_id' must have {n} entries, got {ids.size}; pass one id per node")
+    net = rooted_network(n, from_node, to_node, roots=roots)
+    L = net.n_links
+    plan = _float_array("length_m", length_m, (L,), min_value=0.0, strict=True)
+    surf = _float_array("surface_length_m", surface_length_m, (L,), min_value=0.0, strict=True)
+    land = np.zeros(L) if land_cost is None else _float_array("land_cost", land_cost, (L,), min_value=0.0)
+    notes = []
+    missing = np.isnan(elev)
+    if missing.all():
+        if system == "gravity":
+            raise InputError("gravity design needs ground elevations: give --terrain or site Z")
+        elev = np.zeros(n)
+        notes.append("no ground elevations given: flat ground at 0 m assumed for pressures")
+    elif missing.any():
+        k = int(np.flatnonzero(missing)[0])
+        raise InputError(f"node '{ids[k]}' has no ground elevation while others do; give its Z or a terrain raster covering it")
+    off, st, gr = _oriented_profiles(net, plan, elev, profile_offsets, profile_station_m, profile_ground_m)
+    accumulated = accumulate(net, demand)
+    q_lps = design_flow_lps(accumulated, peaking_factor=s.peaking_factor, min_flow_lps=s.min_flow_lps)
+    links = {
+        "from_node": net.from_node,
+        "to_node": net.to_node,
+        "reversed": net.reversed,
+        "flow_lps": accumulated,
+        "design_flow_lps": q_lps,
+    }
+    nodes = {"hops_to_root": net.hops_to_root.copy()}
+    flags_l: dict[str, np.ndarray] = {}
+    flags_n: dict[str, np.ndarray] = {}
+    details: list[tuple[str, int, str, str]] = []  # (kind, index, check, text)
+    summary = {"system": system, "n_nodes": n, "n_links": L, "n_roots": int(net.roots.size)}
+    access = {k: np.zeros(0) for k in ("chainage_m", "x", "y", "ground_m", "invert_m")}
+    access["link"] = np.zeros(0, np.int64)
+
+    if system == "pressure":
+        cat = cat_used = s.pressure_catalog if s.pressure_catalog is not None else default_catalog()
+        need = "hw_c" if s.headloss_method == "hazen_williams" else "roughness_mm"
+        for attr in (need, "rating_m"):
+            bad = np.flatnonzero(np.isnan(getattr(cat, attr)))
+            if bad.size:
+                raise InputError(
+                    f"pipe catalog pipe '{cat.name[bad[0]]}' has no {attr}; pressure design with '{s.headloss_method}' needs it for every pipe"
+                )
+        nu = float(water_kinematic_viscosity_m2ps(s.water_temperature_c))
+        sized = size_pressure(q_lps, surf, cat, velocity_max_mps=s.velocity_max_mps, headloss_max_m_per_km=s.headloss_max_m_per_km,
+                              method=s.headloss_method, nu_m2ps=nu, minor_loss_factor=s.minor_loss_factor)
+        pipe = sized.pipe
+        if s.source_head_m is not None:
+            src = np.atleast_1d(np.asarray(s.source_head_m, dtype=np.float64))
+            if src.size not in (1, net.roots.size):
+                raise InputError(
+                    f"design option 'source_head_m' has {src.size} values for {net.roots.size} sources; give one, or one per source"
+                )
+            src_arg = src if src.size > 1 else float(src[0])
+        else:
+            src_arg = None
+        hgl, root_hgl = hydraulic_grade(net, sized.headloss_m, elev, source_head_m=src_arg, min_pressure_m=s.min_pressure_m)
+        pos = np.empty(n, np.int64)
+        pos[net.roots] = np.arange(net.roots.size)
+        head = hgl - elev
+        static = root_hgl[pos[net.root_of]] - elev
+        # pressure along each link's profile: HGL falls linearly with distance
+        plink = np.repeat(np.arange(L), np.diff(off))
+        frac = np.where(plan[plink] > 0, st / plan[plink], 0.0)
+        hgl_s = hgl[net.from_node][plink] - sized.headloss_m[plink] * frac
+        p_min = np.minimum.reduceat(hgl_s - gr, off[:-1]) if L else np.zeros(0)
+        static_max = np.maximum.reduceat(root_hgl[pos[net.root_of[net.from_node]]][plink] - gr, off[:-1]) if L else np.zeros(0)
+        rating = cat.rating_m[pipe]
+        node_rating = np.full(n, np.inf)
+        np.minimum.at(node_rating, net.from_node, rating)
+        np.minimum.at(node_rating, net.to_node, rating)
+        tol = 1e-9
+        flags_l["no_pipe"] = sized.no_pipe
+        flags_l["low_pressure"] = p_min < s.min_pressure_m - tol
+        flags_l["over_rating"] = static_max > rating + tol
+        flags_n["low_pressure"] = head < s.min_pressure_m - tol
+        flags_n["over_rating"] = static > node_rating + tol
+        links.update(
+            flow_direction=np.full(L, FLOW_FROM_TO, dtype=object),
+            velocity_mps=sized.velocity_mps,
+            headloss_m=sized.headloss_m,
+            hgl_from_m=hgl[net.from_node],
+            hgl_to_m=hgl[net.to_node],
+            pressure_min_m=p_min,
+            rating_m=rating,
+        )
+        nodes.update(hgl_m=hgl, pressure_head_m=head, static_head_m=static)
+        pipe_len = surf.copy()
+        trench_depth = np.full(L, s.pressure_cover_m) + cat.nominal_mm[pipe] / 1000.0 + s.bedding_m
+        for k in np.flatnonzero(sized.no_pipe):
+            details.append(("link", k, "no_pipe", f"{q_lps[k]:.3g} L/s exceeds the velocity or head-loss limit of the largest pipe; add a larger pipe to the catalog or relax the limits"))
+        for k in np.flatnonzero(flags_l["low_pressure"]):
+            details.append(("link", k, "low_pressure", f"pressure falls to {p_min[k]:.1f} m along the link (< {s.min_pressure_m:g} m); raise the source head or enlarge the pipes"))
+        for k in np.flatnonzero(flags_l["over_rating"]):
+            details.append(("link", k, "over_rating", f"static head {static_max[k]:.1f} m exceeds the pipe rating {rating[k]:.1f} m; use a higher pressure class or reduce the source head"))
+        for v in np.flatnonzero(flags_n["low_pressure"]):
+            details.append(("node", v, "low_pressure", f"pressure head {head[v]:.1f} m < {s.min_pressure_m:g} m"))
+        for v in np.flatnonzero(flags_n["over_rating"]):
+            details.append(("node", v, "over_rating", f"static head {static[v]:.1f} m exceeds the rating {node_rating[v]:.1f} m of a pipe at the node"))
+        worst = int(np.argmin(head))
+        summary.update(
+            source_hgl_m=root_hgl.tolist(),
+            source_pressure_head_m=(root_hgl - elev[net.roots]).tolist(),
+            source_head_solved=s.source_head_m is None,
+            min_pressure_head_m=float(head[worst]),
+            min_pressure_node=str(ids[worst]),
+            max_static_head_m=float(static.max()),
+            headloss_method=s.headloss_method,
+            kinematic_viscosity_m2ps=nu,
+        )
+    else:
+        full_cat = cat_used = s.gravity_catalog if s.gravity_catalog is not None else default_gravity_catalog()
+        keep = np.flatnonzero(full_cat.nominal_mm >= s.gravity_min_diameter_mm)
+        if keep.size == 0:
+            raise InputError(
+                f"gravity pipe catalog has no pipe of at least {s.gravity_min_diameter_mm:g} mm nominal; add larger pipes or lower 'gravity_min_diameter_mm'"
+            )
+        d_m = full_cat.inner_mm[keep] / 1000.0
+        n_man = np.where(np.isnan(full_cat.manning_n[keep]), s.manning_n, full_cat.manning_n[keep])
+        smin = min_slope(full_cat.nominal_mm[keep], full_cat.inner_mm[keep], n_man,
+                         table_pct=s.gravity_min_slope_table_pct, min_velocity_mps=s.gravity_min_velocity_mps)
+        plink = np.repeat(np.arange(L), np.diff(off))
+        st_up = plan[plink] - st  # stations from the upstream (to_node) end
+        q = q_lps / 1000.0
+        sub, inv_up, inv_down, slope, no_pipe = walk_inverts(
+            net, elev, off, st_up, gr, q, d_m, n_man, smin, cover_m=s.gravity_cover_m, drop_m=s.junction_drop_m
+        )
+        pipe = keep[sub]
+        d = d_m[sub]
+        nn = n_man[sub]
+        v_full, q_full = full_pipe(d, slope, nn)
+        yd = depth_ratio_for_flow(q, d, slope, nn)
+        area, _, _ = part_full_section(np.where(np.isnan(yd), 1.0, yd), d)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            v_act = np.where(q > 0, q / np.where(area > 0, area, np.inf), 0.0)
+        v_act = np.where(np.isnan(yd), q / (np.pi * d * d / 4.0), v_act)
+        inv_s = inv_up[plink] - slope[plink] * st_up
+        depth_s = gr - inv_s
+        depth_max = np.maximum.reduceat(depth_s, off[:-1]) if L else np.zeros(0)
+        cover_min = np.minimum.reduceat(depth_s - d[plink], off[:-1]) if L else np.zeros(0)
+        node_inv = np.full(n, np.inf)
+        np.minimum.at(node_inv, net.to_node, inv_up)
+        np.minimum.at(node_inv, net.from_node, inv_down)
+        node_inv[np.isinf(node_inv)] = np.nan
+        tol = 1e-9
+        flags_l["no_pipe"] = no_pipe
+        flags_l["surcharged"] = q > q_full * (1 + 1e-9)
+        flags_l["too_deep"] = depth_max > s.gravity_max_depth_m + tol
+        flags_l["adverse_grade"] = (slope <= 0) | (slope < smin[sub] * (1 - 1e-9))
+        flags_l["low_velocity"] = (q > 0) & (v_act < s.gravity_min_velocity_mps - tol)
+        flags_l["low_cover"] = cover_min < s.gravity_cover_m - 1e-6
+        flags_n["too_deep"] = (elev - node_inv) > s.gravity_max_depth_m + tol
+        n_ap = np.where(plan > s.access_spacing_m, np.ceil(plan / s.access_spacing_m - 1e-12) - 1, 0).astype(np.int64)
+        ap_link = np.repeat(np.arange(L), n_ap)
+        ap_k = np.arange(ap_link.size) - np.repeat(np.cumsum(n_ap) - n_ap, n_ap) + 1
+        ap_ch = plan[ap_link] * ap_k / (n_ap[ap_link] + 1)  # from from_node (downstream)
+        ap_frac = ap_ch / plan[ap_link]
+        p0, p1 = xy[net.from_node[ap_link]], xy[net.to_node[ap_link]]
+        ap_ground = np.array([np.interp(c, st[off[k]:off[k + 1]], gr[off[k]:off[k + 1]]) for k, c in zip(ap_link, ap_ch)]) if ap_link.size else np.zeros(0)
+        access = {
+            "link": ap_link,
+            "chainage_m": ap_ch,
+            "x": p0[:, 0] + (p1[:, 0] - p0[:, 0]) * ap_frac,
+            "y": p0[:, 1] + (p1[:, 1] - p0[:, 1]) * ap_frac,
+            "ground_m": ap_ground,
+            "invert_m": inv_down[ap_link] + slope[ap_link] * ap_ch,
+        }
+        links.update(
+            flow_direction=np.full(L, FLOW_TO_FROM, dtype=object),
+            manning_n=nn,
+            invert_up_m=inv_up,
+            invert_down_m=inv_down,
+            slope_pct=slope * 100.0,
+            min_slope_pct=smin[sub] * 100.0,
+            depth_max_m=depth_max,
+            cover_min_m=cover_min,
+            capacity_lps=q_full * 1000.0,
+            velocity_full_mps=v_full,
+            velocity_mps=v_act,
+            depth_ratio=yd,
+            n_access_points=n_ap,
+        )
+        nodes.update(invert_m=node_inv, depth_m=elev - node_inv)
+        pipe_len = np.hypot(plan, inv_up - inv_down)
+        mean_depth = _segment_mean(off, st, depth_s) if L else np.zeros(0)
+        trench_depth = mean_depth + s.bedding_m
+        for k in np.flatnonzero(no_pipe):
+            details.append(("link", k, "no_pipe", f"{q_lps[k]:.3g} L/s exceeds the full-pipe capacity {q_full[k] * 1000:.3g} L/s of the largest pipe; add larger pipes to the catalog"))
+        for k in np.flatnonzero(flags_l["too_deep"]):
+            details.append(("link", k, "too_deep", f"invert {depth_max[k]:.2f} m below ground (> {s.gravity_max_depth_m:g} m); a lift station or another route is needed"))
+        for k in np.flatnonzero(flags_l["adverse_grade"]):
+            details.append(("link", k, "adverse_grade", f"grade {slope[k] * 100:.3f} % below the minimum {smin[sub][k] * 100:.3f} %"))
+        for k in np.flatnonzero(flags_l["low_velocity"]):
+            details.append(("link", k, "low_velocity", f"{v_act[k]:.2f} m/s at design flow (< {s.gravity_min_velocity_mps:g} m/s); expect deposits, plan flushing"))
+        for k in np.flatnonzero(flags_l["low_cover"]):
+            details.append(("link", k, "low_cover", f"cover {cover_min[k]:.2f} m < {s.gravity_cover_m:g} m"))
+        for v in np.flatnonzero(flags_n["too_deep"]):
+            details.append(("node", v, "too_deep", f"invert {elev[v] - node_inv[v]:.2f} m below ground (> {s.gravity_max_depth_m:g} m)"))
+        summary.update(
+            outlet_invert_m=node_inv[net.roots].tolist(),
+            outlet_depth_m=(elev[net.roots] - node_inv[net.roots]).tolist(),
+            max_depth_m=float(np.nanmax(elev - node_inv)) if L else 0.0,
+            n_access_points=int(n_ap.sum()),
+        )
+
+    width = cat_used.nominal_mm[pipe] / 1000.0 + 2.0 * s.trench_side_clearance_m
+    trench_len = surf if system == "pressure" else plan
+    trench_cost = s.trench_cost_per_m3 * width * trench_depth * trench_len
+    pipe_cost = cat_used.cost_per_m[pipe] * pipe_len
+    links.update(
+        pipe=cat_used.name[pipe],
+        material=cat_used.material[pipe],
+        diameter_mm=cat_used.inner_mm[pipe],
+        nominal_mm=cat_used.nominal_mm[pipe],
+        pipe_length_m=pipe_len,
+        trench_depth_m=trench_depth,
+        pipe_cost=pipe_cost,
+        trench_cost=trench_cost,
+        land_cost=land,
+    )
+    links["checks"] = _checks(L, flags_l)
+    nodes["checks"] = _checks(n, flags_n)
+    quantities = _quantities(cat_used, pipe, pipe_len, pipe_cost, trench_cost, land)
+    failures = []
+    for kind, i, check, text in sorted(details, key=lambda t: (t[0] != "link", t[1], t[2])):
+        if kind == "link":
+            failures.append(f"link {i} ({ids[net.from_node[i]]}–{ids[net.to_node[i]]}): {check}: {text}")
+        else:
+            failures.append(f"node '{ids[i]}': {check}: {text}")
+    counts = {f"link:{k}": int(v.sum()) for k, v in flags_l.items()}
+    counts.update({f"node:{k}": int(v.sum()) for k, v in flags_n.items()})
+    summary.update(
+        total_pipe_length_m=float(pipe_len.sum()),
+        pipe_cost=float(pipe_cost.sum()),
+        trench_cost=float(trench_cost.sum()),
+        land_cost=float(land.sum()),
+        total_cost=float(pipe_cost.sum() + trench_cost.sum() + land.sum()),
+        failing_checks=counts,
+        n_failures=len(failures),
+        notes=notes,
+        caution=CAUTION,
+    )
+    return DesignResult(system=system, link_fields=links, node_fields=nodes, quantities=quantities,
+                        access_points=access, summary=summary, failures=failures)
+
+
+def _checks(size, flags):
+    out = np.full(size, "", dtype=object)
+    for name, mask in flags.items():
+        m = np.asarray(mask, bool)
+        out[m] = np.where(out[m] == "", name, out[m] + ";" + name)
+    out[out == ""] = "ok"
+    return out
+
+
+def _quantities(cat, pipe, length, pipe_cost, trench_cost, land):
+    used, inv = np.unique(pipe, return_inverse=True)
+    p = used.size
+
+    def total(x):
+        return np.bincount(inv, weights=x, minlength=p)
+
+    cols = {
+        "pipe": np.append(cat.name[used], "TOTAL").astype(object),
+        "material": np.append(cat.material[used], "").astype(object),
+        "nominal_mm": np.append(cat.nominal_mm[used], np.nan),
+        "inner_mm": np.append(cat.inner_mm[used], np.nan),
+        "count": np.append(np.bincount(inv, minlength=p), pipe.size).astype(np.int64),
+        "length_m": np.append(total(length), length.sum()),
+        "pipe_cost": np.append(total(pipe_cost), pipe_cost.sum()),
+        "trench_cost": np.append(total(trench_cost), trench_cost.sum()),
+        "land_cost": np.append(total(land), land.sum()),
+    }
+    cols["total_cost"] = cols["pipe_cost"] + cols["trench_cost"] + cols["land_cost"]
+    return cols
