@@ -410,3 +410,26 @@ def test_bad_scenario_setting_names_the_scenario(project, tmp_path):
     path.write_text(text)
     with pytest.raises(DataFileError, match="^scenario 'flat': cannot open raster .*missing.tif"):
         run_scenarios(path, names=["flat"])
+
+
+def test_designed_scenario_matches_plan_layout(project, tmp_path):
+    from mainspan.layout import plan_layout
+    from mainspan.project import load_project, plan_kwargs
+    from mainspan.scenarios import run_scenarios
+    from mainspan.sites import read_sites
+
+    text = open(project).read() + '\n[scenarios.sized]\ndesign = { system = "pressure" }\n'
+    path = tmp_path / "sized.toml"
+    path.write_text(text)
+    s = run_scenarios(path, names=["sized"])
+    p, read_kw, plan, _ = plan_kwargs(load_project(path).settings_for("sized"))
+    ref = plan_layout(read_sites(p, **read_kw), **plan)
+    mine = s["sized"]
+    assert mine.design is not None and "diameter_mm" in mine.links
+    for k, v in ref.links.items():
+        np.testing.assert_array_equal(np.asarray(v), np.asarray(mine.links[k]), err_msg=k)
+    for k, v in ref.nodes.items():
+        np.testing.assert_array_equal(np.asarray(v), np.asarray(mine.nodes[k]), err_msg=k)
+    i = s.names.index("sized")
+    assert s.summary["failed_checks"][i] == len(ref.design.failures)
+    assert s.summary["jaccard_base"][i] == 1.0        # sizing does not move the tree
