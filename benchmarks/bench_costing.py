@@ -51,7 +51,7 @@ def write_rasters(folder: Path, n: int):
     dem, cost = folder / "dem.tif", folder / "cost.tif"
     rng = np.random.default_rng(7)
     ph = rng.uniform(0, 6.3, 6)
-    step = 1024
+    step = 256   # rows per write, a multiple of the block height, to keep this small
     with rasterio.open(dem, "w", **prof) as d, rasterio.open(cost, "w", **prof) as c:
         cols = np.arange(n, dtype=np.float64)
         for r0 in range(0, n, step):
@@ -78,15 +78,30 @@ def delaunay_edges(xy):
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true", help="small run (2,000^2 cells, 10,000 sites)")
+    ap.add_argument("--cells", type=int, default=None,
+                    help="raster side in cells (default 10000, 2000 with --quick)")
+    ap.add_argument("--sites", type=int, default=None,
+                    help="number of random sites (default 100000, 10000 with --quick)")
     ap.add_argument("--ref-points", type=int, default=20000,
                     help="positions read point by point by rasterio (default 20000)")
     args = ap.parse_args(argv)
     n_cells, n_sites = (2000, 10_000) if args.quick else (10_000, 100_000)
+    n_cells = args.cells or n_cells
+    n_sites = args.sites or n_sites
     extent = n_cells * CELL
 
     with tempfile.TemporaryDirectory() as tmp:
         t = time.perf_counter()
-        dem, cost = write_rasters(Path(tmp), n_cells)
+        # written by a child process so that this process's peak RSS is the costing's
+        import multiprocessing
+
+        child = multiprocessing.get_context("spawn").Process(target=write_rasters,
+                                                             args=(Path(tmp), n_cells))
+        child.start()
+        child.join()
+        if child.exitcode != 0:
+            raise SystemExit("writing the benchmark rasters failed")
+        dem, cost = Path(tmp) / "dem.tif", Path(tmp) / "cost.tif"
         print(f"rasters: {n_cells} x {n_cells} cells of {CELL:g} m, two float32 tiled GeoTIFFs "
               f"written in {time.perf_counter() - t:.1f} s "
               f"({(dem.stat().st_size + cost.stat().st_size) / 2**20:.0f} MiB)")
@@ -133,7 +148,7 @@ def main(argv=None):
               f"would be {n_cells * n_cells * 8 / 2**20:,.0f} MiB)")
 
         # 2. the same positions: profile stations of the first links, at half a cell
-        take = min(total_samples, 5_000_000)
+        take = min(total_samples, 10_000_000)
         nst = (np.maximum(1, np.ceil(L / spacing)) + 1).astype(np.int64)
         nl = int(np.searchsorted(np.cumsum(nst), take)) + 1
         owner = np.repeat(np.arange(nl), nst[:nl])
