@@ -78,7 +78,7 @@ import pyproj
 from .errors import InputError
 from .expression import FUNCTIONS, compile_expression
 from .plugins import Registry
-from .surfaces import Surface, open_surface
+from .surfaces import Surface, open_surface, working_crs_of
 
 __all__ = [
     "COST_TERMS",
@@ -573,8 +573,7 @@ def price_links(xy, edges, *, working_crs, terrain=None, land_cost=None, cost_ex
     >>> lc.total.tolist(), lc.components["length_m"].tolist()
     ([15.0], [5.0])
     """
-    wcrs = pyproj.CRS.from_user_input(working_crs) if not isinstance(working_crs, pyproj.CRS) \
-        else working_crs
+    wcrs = working_crs_of(working_crs)
     xy, e = _validate_links(xy, edges)
     if not isinstance(weights, CostWeights):
         raise InputError(f"weights must be a CostWeights; got {type(weights).__name__}")

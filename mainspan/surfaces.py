@@ -498,6 +498,17 @@ def _as_pyproj(crs, what):
                          "give an EPSG code such as 'EPSG:32633' or a WKT string") from None
 
 
+def working_crs_of(crs):
+    """The working CRS as a pyproj CRS; it must be projected with metre axes."""
+    out = crs if isinstance(crs, pyproj.CRS) else _as_pyproj(crs, "working CRS")
+    units = {ax.unit_name for ax in out.axis_info}
+    if not out.is_projected or not units <= {"metre", "meter"}:
+        raise InputError(f"working CRS {out.to_string()} is not projected in metres (axes in "
+                         f"{', '.join(sorted(units)) or 'unknown units'}); lengths would be "
+                         "wrong: use a metric projected CRS such as the local UTM zone")
+    return out
+
+
 def open_surface(path, *, working_crs, raster_crs=None, band=1, name="terrain", max_memory_mb=512):
     """Open one band of a raster as a :class:`Surface` queried in the working CRS.
 
@@ -557,16 +568,21 @@ class Surface:
         except Exception as exc:
             raise DataFileError(f"cannot open raster {self.path!r} ({self.name}): {exc}; "
                                 "check the path and that GDAL can read the format") from None
+        try:
+            self._setup(working_crs, raster_crs, band, max_memory_mb)
+        except Exception:
+            self._ds.close()
+            raise
+
+    def _setup(self, working_crs, raster_crs, band, max_memory_mb):
         ds = self._ds
         if not isinstance(band, (int, np.integer)) or not (1 <= int(band) <= ds.count):
-            ds.close()
             raise InputError(f"band {band!r} of raster {self.path!r} does not exist; "
                              f"it has bands 1..{ds.count}")
         self.band = int(band)
-        self.working_crs = _as_pyproj(working_crs, "working CRS")
+        self.working_crs = working_crs_of(working_crs)
         if ds.crs is None:
             if raster_crs is None:
-                ds.close()
                 raise InputError(f"raster {self.path!r} ({self.name}) has no CRS; "
                                  "pass --raster-crs EPSG:xxxx (raster_crs=) to say which it is")
             self.crs = _as_pyproj(raster_crs, f"raster_crs for {self.path!r}")
@@ -576,7 +592,6 @@ class Surface:
         self.height = int(ds.height)
         self.transform = ds.transform
         if abs(self.transform.determinant) == 0:
-            ds.close()
             raise DataFileError(f"raster {self.path!r} has a degenerate geotransform; "
                                 "fix its georeferencing")
         inv = ~self.transform

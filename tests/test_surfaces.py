@@ -309,6 +309,11 @@ def test_bad_inputs(tmp_path):
         open_surface(p, working_crs=UTM33, max_memory_mb=0)
     with pytest.raises(InputError, match="working CRS"):
         open_surface(p, working_crs="EPSG:nonsense")
+    # lengths are measured in the working CRS, so it must be metric
+    with pytest.raises(InputError, match="not projected in metres"):
+        open_surface(p, working_crs="EPSG:4326")
+    with pytest.raises(InputError, match="not projected in metres"):
+        open_surface(p, working_crs="EPSG:2277")  # Texas Central, US survey feet
 
 
 # --------------------------------------------------------------------------- windowed reads
