@@ -253,13 +253,37 @@ def _refuse_existing_layers(gpkg, overwrite):
                              "--overwrite to replace them, or write elsewhere")
 
 
+def _fmt(v):
+    import numpy as np
+    if isinstance(v, (list, tuple, np.ndarray)):
+        vals = [_fmt(x) for x in v]
+        return ", ".join(vals) if vals else "-"
+    if isinstance(v, dict):
+        items = [f"{k}={_fmt(x)}" for k, x in v.items() if x not in (0, 0.0, None, "")]
+        return ", ".join(items) if items else "none"
+    if isinstance(v, (bool, np.bool_)):
+        return "yes" if v else "no"
+    if isinstance(v, (float, np.floating)):
+        return f"{v:,.2f}"
+    return str(v)
+
+
+_SKIP = {"caution", "n_nodes", "n_links", "n_roots", "system", "notes"}
+
+
 def _print_design(lay):
+    """Design summary, failed checks and the bill of quantities."""
     d = lay.design
     if d is None:
         return
     summ = getattr(d, "summary", {}) or {}
+    print(f"design          {lay.system} mains")
     for k, v in summ.items():
-        print(f"{k:<16}{v}")
+        if k in _SKIP:
+            continue
+        print(f"  {k:<24}{_fmt(v)}")
+    for note in summ.get("notes", []) or []:
+        print(f"  note: {note}")
     fails = getattr(d, "failures", []) or []
     print(f"failed checks   {len(fails)}")
     for line in fails[:10]:
@@ -268,8 +292,21 @@ def _print_design(lay):
         print(f"  … and {len(fails) - 10} more (see the links/nodes 'checks' fields)")
     q = lay.tables.get("quantities")
     if q:
-        from .writers.tables import format_quantities
         print(format_quantities(q))
+
+
+def format_quantities(q) -> str:
+    """The bill of quantities as a fixed-width text table."""
+    import numpy as np
+    cols = [c for c in ("material", "nominal_mm", "length_m", "count", "pipe_cost",
+                        "trench_cost", "land_cost", "total_cost") if c in q]
+    rows = [[_fmt(v) if not isinstance(v, (int, np.integer)) else str(v) for v in
+             (q[c][i] for c in cols)] for i in range(len(q[cols[0]]))]
+    width = [max(len(c), *(len(r[j]) for r in rows)) for j, c in enumerate(cols)]
+    lines = ["bill of quantities:",
+             "  " + "  ".join(c.rjust(w) for c, w in zip(cols, width))]
+    lines += ["  " + "  ".join(v.rjust(w) for v, w in zip(r, width)) for r in rows]
+    return "\n".join(lines)
 
 
 def cmd_check(a):
