@@ -150,13 +150,13 @@ def _sorted_unique_pairs(a, b, n):
 
 
 @numba.njit(cache=True, nogil=True)
-def _hilbert_keys(x, y, bits):
+def _hilbert_keys(xy, x0, y0, scale, bits):
     # Iterative xy -> distance along the Hilbert curve of side 2**bits.
     side = np.int64(1) << bits
-    out = np.empty(x.shape[0], dtype=np.int64)
-    for i in range(x.shape[0]):
-        xi = x[i]
-        yi = y[i]
+    out = np.empty(xy.shape[0], dtype=np.int64)
+    for i in range(xy.shape[0]):
+        xi = np.int64((xy[i, 0] - x0) * scale)
+        yi = np.int64((xy[i, 1] - y0) * scale)
         d = np.int64(0)
         s = side >> 1
         while s > 0:
@@ -173,6 +173,45 @@ def _hilbert_keys(x, y, bits):
             s >>= 1
         out[i] = d
     return out
+
+
+@numba.njit(cache=True, nogil=True)
+def _bounds(xy):
+    x0 = xy[0, 0]
+    x1 = x0
+    y0 = xy[0, 1]
+    y1 = y0
+    for i in range(1, xy.shape[0]):
+        x = xy[i, 0]
+        y = xy[i, 1]
+        x0 = min(x0, x)
+        x1 = max(x1, x)
+        y0 = min(y0, y)
+        y1 = max(y1, y)
+    return x0, y0, max(x1 - x0, y1 - y0)
+
+
+@numba.njit(cache=True, nogil=True)
+def _radix_argsort(keys, n_bits):
+    """Stable argsort of non-negative integer keys below 2**n_bits (LSD radix, 16-bit digits)."""
+    n = keys.shape[0]
+    idx = np.arange(n)
+    tmp = np.empty(n, dtype=np.int64)
+    shift = 0
+    while shift < n_bits:
+        cnt = np.zeros(65537, dtype=np.int64)
+        for i in range(n):
+            cnt[((keys[idx[i]] >> shift) & 0xFFFF) + 1] += 1
+        for d in range(65536):
+            cnt[d + 1] += cnt[d]
+        for i in range(n):
+            j = idx[i]
+            d = (keys[j] >> shift) & 0xFFFF
+            tmp[cnt[d]] = j
+            cnt[d] += 1
+        idx, tmp = tmp, idx
+        shift += 16
+    return idx
 
 
 def spatial_order(xy, *, bits=16) -> np.ndarray:
@@ -196,15 +235,17 @@ def spatial_order(xy, *, bits=16) -> np.ndarray:
     >>> spatial_order([[0.0, 0.0], [1.0, 1.0], [0.0, 1.0], [1.0, 0.0]]).tolist()
     [0, 2, 1, 3]
     """
-    xy = np.asarray(xy, dtype=np.float64)
+    xy = np.ascontiguousarray(xy, dtype=np.float64)
+    if not xy.flags.writeable:
+        xy = xy.copy()
     if xy.shape[0] == 0:
         return np.zeros(0, dtype=np.int64)
-    lo = xy.min(axis=0)
-    span = float((xy.max(axis=0) - lo).max())
+    x0, y0, span = _bounds(xy)
     scale = ((1 << bits) - 1) / span if span > 0 else 0.0
-    q = ((xy - lo) * scale).astype(np.int64)
-    keys = _hilbert_keys(q[:, 0].copy(), q[:, 1].copy(), bits)
-    return np.argsort(keys, kind="stable").astype(np.int64)
+    keys = _hilbert_keys(xy, x0, y0, scale, bits)
+    if xy.shape[0] < 50_000:
+        return np.argsort(keys, kind="stable").astype(np.int64)
+    return _radix_argsort(keys, 2 * bits)
 
 
 def normalize_edges(edges, n_nodes) -> np.ndarray:

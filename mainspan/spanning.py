@@ -47,6 +47,13 @@ __all__ = [
 # Results
 # --------------------------------------------------------------------------------------------
 
+def _plain(a, dtype):
+    """C-contiguous, writable array of *dtype* (numba compiles read-only arrays separately,
+    so results of other stages, which are frozen, are copied once rather than compiled for)."""
+    a = np.ascontiguousarray(a, dtype=dtype)
+    return a if a.flags.writeable else a.copy()
+
+
 def _frozen(a, dtype):
     a = np.ascontiguousarray(a, dtype=dtype)
     a.setflags(write=False)
@@ -160,7 +167,7 @@ def _check_edges(edges, n_nodes):
     if e.dtype.kind not in "iu":
         raise InputError(f"edges must hold integer node indices; got dtype {e.dtype}; "
                          "convert with edges.astype(np.int64) after checking they are whole")
-    e = np.ascontiguousarray(e, dtype=np.int64)
+    e = _plain(e, np.int64)
     k, n_out, n_loop = _scan_edges(e, n_nodes)
     if n_out:
         raise InputError(f"link {k} ({int(e[k, 0])}, {int(e[k, 1])}) has a node index outside "
@@ -213,7 +220,7 @@ def _check_weights(weights, edges):
                          f"got shape {w.shape}; pass weights[k] for edges[k]")
     if w.dtype.kind not in "fiub":
         raise InputError(f"weights must be numbers; got dtype {w.dtype}; pass float weights")
-    w = np.ascontiguousarray(w, dtype=np.float64)
+    w = _plain(w, np.float64)
     k, n_bad = _scan_weights(w)
     if n_bad:
         what = "NaN" if np.isnan(w[k]) else f"negative ({w[k]!r})"
@@ -300,26 +307,28 @@ def _key_less(wa, la, ha, wb, lb, hb):
 
 
 @numba.njit(cache=True, inline="always")
-def _heap_less(i, j, hw, hv, best_par, orig):
-    # Heap entries of two different nodes never share (lo, hi): both ends of such a link
-    # would have to be outside the tree, yet one of them is the tree end.
-    wi = hw[i]
-    wj = hw[j]
-    if wi != wj:
-        return wi < wj
-    a = orig[hv[i]]
-    b = orig[best_par[hv[i]]]
-    c = orig[hv[j]]
-    d = orig[best_par[hv[j]]]
-    return _key_less(wi, min(a, b), max(a, b), wj, min(c, d), max(c, d))
+def _less(wa, va, wb, vb, best_par, orig):
+    """Key order of two heap entries (nodes va, vb with their best link weights).
+
+    Entries of two different nodes never share (lo, hi): both ends of such a link would
+    have to be outside the tree, yet one of them is the tree end.
+    """
+    if wa != wb:
+        return wa < wb
+    a = orig[va]
+    b = orig[best_par[va]]
+    c = orig[vb]
+    d = orig[best_par[vb]]
+    return _key_less(wa, min(a, b), max(a, b), wb, min(c, d), max(c, d))
 
 
 @numba.njit(cache=True)
 def _prim_kernel(n, indptr, buf, orig, roots):
-    """Prim's algorithm with an indexed binary heap (decrease-key) over relabelled nodes.
+    """Prim's algorithm with an indexed 4-ary heap (decrease-key) over relabelled nodes.
 
     ``orig[v]`` is the caller's index of internal node ``v``; tie-breaking uses it so that the
-    result is the same whatever internal order is used.
+    result is the same whatever internal order is used.  A 4-ary heap is a binary heap with
+    four children per slot: half the levels, and the children share a cache line.
     """
     fb = buf.view(np.float64)
     # best_w[v]: weight of v's best link to the tree so far; -inf once v is in the tree, so a
@@ -342,40 +351,42 @@ def _prim_kernel(n, indptr, buf, orig, roots):
     while True:
         # next node to scan: the roots first, then the heap minimum
         if i_root < nr:
-            u = roots[i_root]
+            u = np.int64(roots[i_root])
             i_root += 1
         else:
             if size == 0:
                 break
-            u = hv[0]
+            u = np.int64(hv[0])
             pos[u] = -1
             size -= 1
             if size > 0:
-                # move the last entry to the top and sift it down
+                # sift the last entry down from the top, moving the hole rather than swapping
                 lw = hw[size]
                 lv = hv[size]
-                hw[0] = lw
-                hv[0] = lv
-                pos[lv] = 0
                 i = 0
                 while True:
-                    c = 2 * i + 1
+                    c = 4 * i + 1
                     if c >= size:
                         break
-                    if c + 1 < size and _heap_less(c + 1, c, hw, hv, best_par, orig):
-                        c += 1
-                    if _heap_less(c, i, hw, hv, best_par, orig):
-                        tw = hw[c]
-                        tv = hv[c]
-                        hw[c] = hw[i]
-                        hv[c] = hv[i]
-                        pos[hv[c]] = c
-                        hw[i] = tw
-                        hv[i] = tv
-                        pos[tv] = i
-                        i = c
+                    best = c
+                    bwc = hw[c]
+                    last = min(c + 4, size)
+                    for q in range(c + 1, last):
+                        wq = hw[q]
+                        if wq < bwc or (wq == bwc and _less(wq, hv[q], bwc, hv[best],
+                                                            best_par, orig)):
+                            best = q
+                            bwc = wq
+                    if _less(bwc, hv[best], lw, lv, best_par, orig):
+                        hw[i] = bwc
+                        hv[i] = hv[best]
+                        pos[hv[i]] = i
+                        i = best
                     else:
                         break
+                hw[i] = lw
+                hv[i] = lv
+                pos[lv] = i
             best_w[u] = -np.inf
             order[count] = u
             count += 1
@@ -403,30 +414,23 @@ def _prim_kernel(n, indptr, buf, orig, roots):
             best_w[v] = wk
             best_par[v] = u
             best_edge[v] = k
-            i = pos[v]
+            i = np.int64(pos[v])
             if i < 0:
                 i = size
                 size += 1
-                hw[i] = wk
-                hv[i] = v
-                pos[v] = i
-            else:
-                hw[i] = wk
-            # sift up
+            # sift up from slot i, moving the hole
             while i > 0:
-                q = (i - 1) >> 1
-                if _heap_less(i, q, hw, hv, best_par, orig):
-                    tw = hw[q]
-                    tv = hv[q]
-                    hw[q] = hw[i]
-                    hv[q] = hv[i]
-                    pos[hv[q]] = q
-                    hw[i] = tw
-                    hv[i] = tv
-                    pos[tv] = i
+                q = (i - 1) >> 2
+                if _less(wk, v, hw[q], hv[q], best_par, orig):
+                    hw[i] = hw[q]
+                    hv[i] = hv[q]
+                    pos[hv[i]] = i
                     i = q
                 else:
                     break
+            hw[i] = wk
+            hv[i] = v
+            pos[v] = i
     return best_par, best_edge, order, count
 
 
@@ -612,7 +616,7 @@ def prim_tree(n_nodes, edges, weights, *, roots=(0,), allow_forest=False,
             raise InputError(f"node_order must be a permutation of 0..{n - 1} (int array of "
                              f"shape ({n},)); got shape {orig.shape}, dtype {orig.dtype}; "
                              "pass e.g. spatial_order(xy) or leave it out")
-        orig = np.ascontiguousarray(orig, dtype=np.int64)
+        orig = _plain(orig, np.int64)
         label = np.empty(n, dtype=np.int64)
         label[orig] = np.arange(n, dtype=np.int64)
 
@@ -635,7 +639,7 @@ def prim_tree(n_nodes, edges, weights, *, roots=(0,), allow_forest=False,
         assert count == n
     parent, parent_edge, order_o, root_of = _map_back(n, best_par, best_edge, order, orig, r)
     pe = parent_edge[parent_edge >= 0]
-    weight = float(np.sum(w[np.sort(pe)]))
+    weight = float(np.sum(w[pe]))  # in node order: deterministic
     return Tree(parent=_frozen(parent, np.int64), parent_edge=_frozen(parent_edge, np.int64),
                 order=_frozen(order_o, np.int64), roots=_frozen(r, np.int64),
                 root_of=_frozen(root_of, np.int64), weight=weight)
@@ -867,7 +871,7 @@ def certify_tree(n_nodes, edges, weights, tree: Tree) -> Certificate:
         k = int(parent_edge[v]) if 0 <= parent_edge[v] < e.shape[0] else -1
         return fail(_FAULTS[code].format(v=int(v)), k)
     pe = parent_edge[parent_edge >= 0]
-    total = float(np.sum(w[np.sort(pe)]))
+    total = float(np.sum(w[pe]))
     if not math.isclose(total, float(tree.weight), rel_tol=1e-9, abs_tol=1e-9):
         return fail(f"tree.weight {tree.weight!r} differs from the sum of its links {total!r}")
     in_tree = np.zeros(e.shape[0], dtype=np.bool_)
