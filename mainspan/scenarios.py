@@ -79,13 +79,14 @@ import numpy as np
 from .errors import CertificateError, DataFileError, InputError
 
 __all__ = ["ScenarioResult", "ScenarioSet", "run_scenarios", "write_scenarios", "difference",
-           "combine_costs", "compare_cli", "ALL_CANDIDATES_MAX"]
+           "combine_costs", "format_table", "report_sections", "layer_names", "compare_cli",
+           "ALL_CANDIDATES_MAX"]
 
 #: Up to this many distinct candidate links, ``scenario_links`` holds every candidate.
 ALL_CANDIDATES_MAX = 200_000
 
 #: Weighted cost terms, as (summary column, component, weight name).
-COST_TERMS = (("cost_length", "surface_length_m", "length"), ("cost_land", "land_cost", "land"),
+_SUMMARY_TERMS = (("cost_length", "surface_length_m", "length"), ("cost_land", "land_cost", "land"),
               ("cost_climb", "climb_m", "climb"), ("cost_descent", "descent_m", "descent"),
               ("cost_steep", "steep_length_m", "steep_per_m"))
 
@@ -136,11 +137,17 @@ class ScenarioSet:
         ``regret[i, j]``: cost of layout ``names[i]`` under ``names[j]``'s
         link costs (NaN where the two scenarios have different sites).
     links : dict of str -> ndarray
-        Columns of the ``scenario_links`` layer; ``links_xy`` (q, 2, 2) holds
-        the end coordinates.
+        Columns of the ``scenario_links`` layer.
+    links_xy : ndarray of float64, shape (q, 2, 2)
+        End coordinates of each ``scenario_links`` row (working CRS).
+    crs : pyproj.CRS
+        The base scenario's working CRS.
     work : dict of str -> int
-        How often each shared stage ran (sites reads, candidate builds,
-        terrain pricings, land pricings).
+        How often each shared stage ran: ``sites_reads``,
+        ``candidate_builds``, ``terrain_pricings``, ``land_pricings``,
+        ``raster_opens``.
+    stability_runs, perturb_pct, seed
+        The stability settings used.
     """
 
     names: list
@@ -824,7 +831,7 @@ def _summary(order, results, regret, n_none):
     col = {"scenario": np.asarray(order, dtype=object),
            "description": np.asarray([results[s].description for s in order], dtype=object)}
     rows = {c: np.zeros(k) for c in ("total_length_m", "total_surface_length_m", "total_cost",
-                                     *(t[0] for t in COST_TERMS), "cost_fixed")}
+                                     *(t[0] for t in _SUMMARY_TERMS), "cost_fixed")}
     n_links = np.zeros(k, np.int64)
     jac = np.full(k, np.nan)
     added = np.full(k, -1, np.int64)
@@ -842,7 +849,7 @@ def _summary(order, results, regret, n_none):
         rows["total_length_m"][i] = lay.total("length_m")
         rows["total_surface_length_m"][i] = lay.total("surface_length_m")
         rows["total_cost"][i] = lay.total("cost")
-        for colname, cname, wname in COST_TERMS:
+        for colname, cname, wname in _SUMMARY_TERMS:
             rows[colname][i] = float(getattr(w, wname) * comp[cname][cidx].sum()) \
                 if getattr(w, wname) else 0.0
         rows["cost_fixed"][i] = w.fixed * len(cidx)
@@ -1031,7 +1038,7 @@ def _bars_html(sset):
 
     s = sset.summary
     names = list(s["scenario"])
-    parts = [c for c, _, _ in COST_TERMS] + ["cost_fixed"]
+    parts = [c for c, _, _ in _SUMMARY_TERMS] + ["cost_fixed"]
     fig, ax = plt.subplots(figsize=(max(5.0, 1.3 * len(names) + 2), 3.8))
     bottom = np.zeros(len(names))
     for c in parts:
