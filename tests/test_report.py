@@ -185,6 +185,20 @@ def test_report_structure(tmp_path, system):
 
 
 @pytest.mark.browser
+def test_quantities_with_own_total_row():
+    lay = make_layout("pressure")
+    q = lay.tables["quantities"]
+    body_total = float(q["total_cost"].sum())
+    for k, v in list(q.items()):
+        extra = "TOTAL" if v.dtype == object else v.sum()
+        q[k] = np.append(v.astype(object) if v.dtype == object else v, extra)
+    text = report_html(lay)
+    # the summary does not count the table's own total row twice
+    assert f"{body_total:,.2f}" in text and f"{2 * body_total:,.2f}" not in text
+    assert text.count('class="total"') == 0
+
+
+@pytest.mark.browser
 def test_report_in_headless_chromium(tmp_path):
     if not os.path.exists(CHROMIUM):
         pytest.skip(f"{CHROMIUM} not installed (apt-get install chromium) — browser check skipped")

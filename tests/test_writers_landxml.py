@@ -116,3 +116,23 @@ def test_date_from_run_info(tmp_path):
     lay.run_info["timestamp"] = "2026-03-04T05:06:07+00:00"
     root = _parse(write_landxml(lay, tmp_path / "d.xml"))
     assert (root.get("date"), root.get("time")) == ("2026-03-04", "05:06:07")
+
+
+def test_gravity_design_names_for_inverts(tmp_path):
+    """``invert_down_m``/``invert_up_m`` (downstream = from_node) mean the same as from/to."""
+    from mainspan.writers.dxf import write_dxf
+
+    lay = make_layout("gravity")
+    a = write_landxml(lay, tmp_path / "a.xml")
+    da = write_dxf(lay, tmp_path / "a.dxf")["path"]
+    lay.links["invert_down_m"] = lay.links.pop("invert_from_m")
+    lay.links["invert_up_m"] = lay.links.pop("invert_to_m")
+    b = write_landxml(lay, tmp_path / "b.xml")
+    db = write_dxf(lay, tmp_path / "b.dxf")["path"]
+    strip = lambda t: t.replace(b"invert_down_m", b"X").replace(b"invert_up_m", b"X").replace(  # noqa: E731
+        b"invert_from_m", b"X").replace(b"invert_to_m", b"X")
+    ra, rb = _parse(a), _parse(b)
+    inv_a = [(i.get("refPipe"), i.get("elev")) for i in ra.iterfind(".//x:Invert", NS)]
+    inv_b = [(i.get("refPipe"), i.get("elev")) for i in rb.iterfind(".//x:Invert", NS)]
+    assert inv_a == inv_b and inv_a
+    assert strip(open(da, "rb").read()) == strip(open(db, "rb").read())

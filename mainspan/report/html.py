@@ -19,7 +19,7 @@ import html
 
 import numpy as np
 
-from ..writers.tables import atomic_write, format_value
+from ..writers.tables import atomic_write, format_value, total_rows
 
 __all__ = ["write_report", "report_html", "CAUTIONS"]
 
@@ -156,10 +156,11 @@ def _summary(layout):
         pairs.append(("total cost (tree)", _e(f"{layout.total('cost'):,.2f}")))
     q = layout.tables.get("quantities")
     if q:
+        body = ~total_rows(q)
         for col in ("pipe_cost", "trench_cost", "land_cost", "total_cost"):
             if col in q:
-                pairs.append((col.replace("_", " "),
-                              _e(f"{float(np.nansum(np.asarray(q[col], float))):,.2f}")))
+                v = float(np.nansum(np.asarray(q[col], float)[body]))
+                pairs.append((col.replace("_", " "), _e(f"{v:,.2f}")))
     else:
         for col in lk:
             if col.endswith("_cost") or col == "crossings":
@@ -185,9 +186,13 @@ def _checks_section(layout):
     if "checks" in lk:
         bad = np.flatnonzero(_failed(lk["checks"]))
         if bad.size:
-            cols = {k: np.asarray(lk[k])[bad] for k in
-                    ("link_id", "from_node", "to_node", "pipe", "length_m", "flow_lps",
-                     "velocity_mps", "slope_pct", "depth_max_m", "checks") if k in lk}
+            ids = np.asarray(nd["node_id"]).astype(str)
+            ends = np.asarray(layout.link_ends, np.int64).reshape(-1, 2)
+            cols = {"link_id": np.asarray(lk.get("link_id", np.arange(1, layout.n_links + 1)))[bad],
+                    "from_node": ids[ends[bad, 0]], "to_node": ids[ends[bad, 1]]}
+            cols.update({k: np.asarray(lk[k])[bad] for k in
+                         ("pipe", "length_m", "flow_lps", "velocity_mps", "slope_pct",
+                          "depth_max_m", "checks") if k in lk})
             parts.append("<h3>Links</h3>" + _table(cols, tid="checks-links", cls="long"))
     if "checks" in nd:
         bad = np.flatnonzero(_failed(nd["checks"]))
@@ -206,6 +211,8 @@ def _quantities(layout):
     if not q:
         return ('<p id="quantities">No bill of quantities: pipes are not sized '
                 "(plan with a pressure or gravity system).</p>")
+    if total_rows(q).any():                 # the table brings its own total row
+        return _table(dict(q), tid="quantities")
     tot = {k: float(np.nansum(np.asarray(v, float))) for k, v in q.items()
            if k in ("length_m", "count", "pipe_cost", "trench_cost", "land_cost", "total_cost")}
     if "count" in tot:

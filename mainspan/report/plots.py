@@ -223,9 +223,11 @@ def long_section(layout, *, path=None, to_node=None, longest=True, figsize=(11.0
     ys = [d["ground_z"]]
     ax.plot(d["ground_x"], d["ground_z"], color="#6b4f2a", lw=1.4, label="ground")
     seg_x = np.column_stack([ch[:-1], ch[1:]])
-    if "invert_from_m" in lk:
-        inv = np.column_stack([np.asarray(lk["invert_from_m"], float)[li],
-                               np.asarray(lk["invert_to_m"], float)[li]])
+    from ..writers.tables import link_inverts
+
+    inv_all = link_inverts(layout)
+    if inv_all is not None:
+        inv = inv_all[li]
         dia = (np.asarray(lk["diameter_mm"], float)[li] / 1000.0 if "diameter_mm" in lk
                else np.zeros(len(li)))
         for j in range(len(li)):
@@ -258,17 +260,21 @@ def long_section(layout, *, path=None, to_node=None, longest=True, figsize=(11.0
     ax.set_xlim(x0, x0 + xspan)
     ax.set_ylim(yc - yspan / 2, yc + yspan / 2)
     top = yc + yspan / 2
+    npath = len(d["path"])
+    every = max(1, int(math.ceil(npath / 24)))          # at most ~24 node labels
     for j, node in enumerate(d["path"]):
         ax.axvline(ch[j], color="#888888", lw=0.5, ls=":")
+        if j % every and j != npath - 1:
+            continue
         ax.annotate(ids[node], (ch[j], top), xytext=(0, -3), textcoords="offset points",
-                    ha="center", va="top", fontsize=8, rotation=90 if len(d["path"]) > 14 else 0,
+                    ha="center", va="top", fontsize=8, rotation=90 if npath > 12 else 0,
                     clip_on=True)
     size = None
     if "nominal_mm" in lk:
         size = [f"DN{int(round(float(v)))}" for v in np.asarray(lk["nominal_mm"])[li]]
     elif "diameter_mm" in lk:
         size = [f"ID{float(v):.0f}" for v in np.asarray(lk["diameter_mm"])[li]]
-    if size is not None and len(li) <= 30:
+    if size is not None and len(li) <= 24:
         bottom = yc - yspan / 2
         for j in range(len(li)):
             ax.annotate(size[j], ((ch[j] + ch[j + 1]) / 2, bottom), xytext=(0, 3),

@@ -39,7 +39,7 @@ import re
 import numpy as np
 
 from ..errors import DataFileError, InputError
-from .tables import atomic_write, check_target, format_value
+from .tables import atomic_write, check_target, format_value, link_inverts
 
 __all__ = ["write_dxf", "safe_layer_name", "LAYER_NAME_RE"]
 
@@ -68,8 +68,8 @@ def safe_layer_name(name, taken=()):
 
 
 def _nice_height(extent_m):
-    """Text height about 1/250 of the drawing extent, rounded to 1, 2 or 5 × 10^k."""
-    h = max(float(extent_m), 1.0) / 250.0
+    """Text height about 1/250 of the drawing extent, rounded to 1, 2 or 5 × 10^k, ≥ 0.2 m."""
+    h = max(float(extent_m), 50.0) / 250.0
     e = math.floor(math.log10(h))
     for m in (1.0, 2.0, 5.0, 10.0):
         if h <= m * 10 ** e * 1.5:
@@ -222,10 +222,7 @@ def write_dxf(layout, path, *, by="role", polylines="3d", text_height_m=None, or
             raise InputError(f"text_height_m={text_height_m!r}: expected a positive number of metres")
 
     system = (layout.run_info.get("system") or "").lower()
-    gravity = system == "gravity" and "invert_from_m" in layout.links
-    invert = (np.column_stack([np.asarray(layout.links["invert_from_m"], float),
-                               np.asarray(layout.links["invert_to_m"], float)])
-              if gravity else None)
+    invert = link_inverts(layout) if system == "gravity" else None
     zg = layout.link_coordinates("ground")[:, :, 2] if m else np.zeros((0, 2))
 
     # ---- layer names
@@ -261,8 +258,13 @@ def write_dxf(layout, path, *, by="role", polylines="3d", text_height_m=None, or
     node_layer = [layer("NODE_" + r.upper()) for r in roles]
     lab_node, lab_link = layer("LABEL_NODE"), layer("LABEL_LINK")
 
-    # ---- drawing
-    doc = ezdxf.new("R2013", setup=False)
+    # ---- drawing (ezdxf's fixed-metadata mode: no dates or random GUIDs, same bytes each run)
+    keep = ezdxf.options.write_fixed_meta_data_for_testing
+    ezdxf.options.write_fixed_meta_data_for_testing = True
+    try:
+        doc = ezdxf.new("R2013", setup=False)
+    finally:
+        ezdxf.options.write_fixed_meta_data_for_testing = keep
     doc.header["$INSUNITS"] = 6          # metres
     doc.header["$MEASUREMENT"] = 1       # metric
     doc.header["$LUNITS"] = 2            # decimal
@@ -290,6 +292,7 @@ def write_dxf(layout, path, *, by="role", polylines="3d", text_height_m=None, or
     shift = np.array([x0, y0, 0.0])
 
     link_ids = layout.links.get("link_id", np.arange(1, m + 1))
+    ids = np.asarray(layout.nodes["node_id"]).astype(str)
     for i in range(m):
         v = _link_vertices(layout, i, xy, zg, invert) - shift
         lay = link_layer[i]
@@ -298,10 +301,8 @@ def write_dxf(layout, path, *, by="role", polylines="3d", text_height_m=None, or
         else:
             e = msp.add_lwpolyline([tuple(p[:2]) for p in v[[0, -1]]], dxfattribs={"layer": lay})
         xd = [(1000, f"link_id={link_ids[i]}"),
-              (1000, f"from_node={layout.links['from_node'][i]}" if "from_node" in layout.links
-               else "from_node="),
-              (1000, f"to_node={layout.links['to_node'][i]}" if "to_node" in layout.links
-               else "to_node=")]
+              (1000, f"from_node={ids[layout.link_ends[i, 0]]}"),
+              (1000, f"to_node={ids[layout.link_ends[i, 1]]}")]
         if "pipe" in layout.links:
             xd.append((1000, f"pipe={layout.links['pipe'][i]}"))
         e.set_xdata(APPID, xd)
@@ -323,7 +324,6 @@ def write_dxf(layout, path, *, by="role", polylines="3d", text_height_m=None, or
         counts[lab_link] = counts.get(lab_link, 0) + 1
 
     elev = np.asarray(layout.nodes.get("elevation_m", np.full(n, np.nan)), float)
-    ids = np.asarray(layout.nodes["node_id"]).astype(str)
     for k in range(n):
         z = float(elev[k]) if np.isfinite(elev[k]) else 0.0
         p = (xy[k, 0] - x0, xy[k, 1] - y0, z if polylines == "3d" else 0.0)
@@ -343,8 +343,7 @@ def write_dxf(layout, path, *, by="role", polylines="3d", text_height_m=None, or
         doc.header["$EXTMAX"] = (float(hi[0]), float(hi[1]), 0.0)
         doc.set_modelspace_vport(height=float((hi - lo).max()), center=tuple((lo + hi) / 2))
 
-    keep = ezdxf.options.write_fixed_meta_data_for_testing
-    ezdxf.options.write_fixed_meta_data_for_testing = True     # fixed dates/GUIDs
+    ezdxf.options.write_fixed_meta_data_for_testing = True
     try:
         buf = io.StringIO()
         doc.write(buf)

@@ -44,7 +44,7 @@ import re
 import numpy as np
 
 from ..errors import InputError
-from .tables import atomic_write, format_value
+from .tables import atomic_write, format_value, link_inverts
 
 __all__ = ["write_landxml", "LANDXML_NS", "FIXED_DATE", "FIXED_TIME"]
 
@@ -165,9 +165,8 @@ def write_landxml(layout, path, *, overwrite=False):
     lid = np.asarray(lk.get("link_id", np.arange(1, m + 1)))
     pipe_names = [f"L{v}" for v in lid]
     elev = np.asarray(layout.nodes.get("elevation_m", np.full(n, np.nan)), float)
-    has_inv = "invert_from_m" in lk and "invert_to_m" in lk
-    inv = (np.column_stack([np.asarray(lk["invert_from_m"], float),
-                            np.asarray(lk["invert_to_m"], float)]) if has_inv else None)
+    inv = link_inverts(layout)
+    has_inv = inv is not None
     # flow direction: pressure mains flow away from the root, gravity mains toward it
     start_col, end_col = (1, 0) if gravity else (0, 1)
     length = np.asarray(lk.get("length_m", np.hypot(*(xy[ends[:, 1]] - xy[ends[:, 0]]).T)), float)

@@ -24,7 +24,7 @@ import numpy as np
 from ..errors import DataFileError, InputError, OverwriteError
 
 __all__ = ["write_links_csv", "write_quantities_csv", "format_value", "check_target",
-           "atomic_write"]
+           "atomic_write", "link_inverts", "total_rows"]
 
 # decimals by column-name suffix (first match wins); the rest use 6 significant digits
 _DECIMALS = (("_lps", 3), ("_mps", 3), ("_pct", 3), ("_mm", 1), ("_m", 3),
@@ -67,6 +67,31 @@ def atomic_write(path, data, *, overwrite=False, what="output"):
             os.unlink(tmp)
         raise
     return path
+
+
+# --------------------------------------------------------------------------- shared reads
+def link_inverts(layout):
+    """(L, 2) pipe inverts at each link's (from_node, to_node), or None when not designed.
+
+    Reads ``invert_from_m``/``invert_to_m``, or the gravity design's
+    ``invert_down_m``/``invert_up_m`` (downstream end = from_node, nearer the outlet).
+    """
+    lk = layout.links
+    for a, b in (("invert_from_m", "invert_to_m"), ("invert_down_m", "invert_up_m")):
+        if a in lk and b in lk:
+            return np.column_stack([np.asarray(lk[a], float), np.asarray(lk[b], float)])
+    return None
+
+
+def total_rows(table: dict):
+    """Boolean mask of summary rows (a text cell reading "total") in a table of columns."""
+    n = len(next(iter(table.values()))) if table else 0
+    mask = np.zeros(n, bool)
+    for v in table.values():
+        a = np.asarray(v)
+        if a.dtype.kind in "OUS":
+            mask |= np.char.lower(a.astype(str)) == "total"
+    return mask
 
 
 # --------------------------------------------------------------------------- formatting
