@@ -277,6 +277,8 @@ def long_section(layout, *, path=None, to_node=None, longest=True, figsize=(11.0
     if size is not None and len(li) <= 24:
         bottom = yc - yspan / 2
         for j in range(len(li)):
+            if ch[j + 1] - ch[j] < 0.04 * xspan:       # too short to carry a label
+                continue
             ax.annotate(size[j], ((ch[j] + ch[j + 1]) / 2, bottom), xytext=(0, 3),
                         textcoords="offset points", ha="center", va="bottom", fontsize=7,
                         color="#1f4e9a")
