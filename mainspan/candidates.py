@@ -677,7 +677,7 @@ def build_candidates(xy, method="delaunay", *, k=8, max_link_m=None,
     edges = np.ascontiguousarray(edges, dtype=np.int64)
     edges.setflags(write=False)
     origin.setflags(write=False)
-    node_order = spatial_order(local)
+    node_order = spatial_order(a)
     node_order.setflags(write=False)
     return Candidates(edges=edges, origin=origin, origin_names=tuple(names),
                       method="+".join(names), n_dropped_long=n_dropped, node_order=node_order)

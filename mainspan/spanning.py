@@ -489,7 +489,7 @@ def connected_components(n_nodes, edges, *, weights=None) -> np.ndarray:
     if weights is not None:
         w = _check_weights(weights, e)
         e = e[np.isfinite(w)]
-    g = coo_matrix((np.ones(e.shape[0], dtype=np.int8), (e[:, 0], e[:, 1])), shape=(n, n))
+    g = coo_matrix((np.ones(e.shape[0], dtype=bool), (e[:, 0], e[:, 1])), shape=(n, n))
     _, lab = _cc(g, directed=False)
     lab = lab.astype(np.int64)
     # renumber by lowest node index, whatever scipy's own numbering
@@ -609,13 +609,13 @@ def prim_tree(n_nodes, edges, weights, *, roots=(0,), allow_forest=False,
         label = orig
     else:
         orig = np.asarray(node_order)
-        if (orig.shape != (n,) or orig.dtype.kind not in "iu"
-                or not np.array_equal(np.bincount(orig.astype(np.int64), minlength=n)
-                                      if orig.size and orig.min() >= 0 and orig.max() < n
-                                      else np.zeros(1), np.ones(n))):
+        is_perm = (orig.shape == (n,) and orig.dtype.kind in "iu"
+                   and orig.min() >= 0 and orig.max() < n
+                   and bool((np.bincount(orig.astype(np.int64), minlength=n) == 1).all()))
+        if not is_perm:
             raise InputError(f"node_order must be a permutation of 0..{n - 1} (int array of "
                              f"shape ({n},)); got shape {orig.shape}, dtype {orig.dtype}; "
-                             "pass e.g. spatial_order(xy) or leave it out")
+                             "pass Candidates.node_order or spatial_order(xy), or leave it out")
         orig = _plain(orig, np.int64)
         label = np.empty(n, dtype=np.int64)
         label[orig] = np.arange(n, dtype=np.int64)
