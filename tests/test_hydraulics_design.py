@@ -90,12 +90,23 @@ def test_pressure_given_source_head_flags_low_pressure_and_rating():
 
 def test_pressure_profile_high_point_is_checked():
     # a hill 8 m above the line in the middle of link 0-1: pressure along the link drops there
-    s = DesignSettings(pressure_catalog=one_pipe(), headloss_method="hazen_williams", headloss_max_m_per_km=None)
     off = np.array([0, 1, 1, 1, 1])
-    r = pressure(s, profile_offsets=off, profile_station_m=np.array([100.0]), profile_ground_m=np.array([107.0]))
+    hill = dict(profile_offsets=off, profile_station_m=np.array([100.0]), profile_ground_m=np.array([107.0]))
+    given = DesignSettings(pressure_catalog=one_pipe(), headloss_method="hazen_williams", headloss_max_m_per_km=None,
+                           source_head_m=120.0)
+    r = pressure(given, **hill)
     hgl0, hgl1 = r.link_fields["hgl_from_m"][0], r.link_fields["hgl_to_m"][0]
+    assert hgl0 == 120.0
     assert r.link_fields["pressure_min_m"][0] == pytest.approx((hgl0 + hgl1) / 2 - 107.0)
     assert "low_pressure" in r.link_fields["checks"][0]
+    assert r.link_fields["checks"][1:].tolist() == ["ok"] * 3
+    # solving the source head lifts the grade line until the hill top has 14 m too
+    solved = DesignSettings(pressure_catalog=one_pipe(), headloss_method="hazen_williams", headloss_max_m_per_km=None)
+    r2 = pressure(solved, **hill)
+    h = hand_losses()
+    assert r2.summary["source_hgl_m"][0] == pytest.approx(107.0 + 14.0 + h[0] / 2)
+    assert r2.link_fields["pressure_min_m"][0] == pytest.approx(14.0)
+    assert r2.failures == []
 
 
 def test_pressure_sizing_matches_independent_colebrook():
@@ -281,3 +292,12 @@ def test_bad_inputs_name_the_field():
 def test_default_gravity_catalog_is_used_by_default():
     r = gravity([10.0] * 5)
     assert set(r.link_fields["pipe"]) <= set(default_gravity_catalog().name)
+
+
+def test_access_point_ground_follows_the_profile():
+    # link 0-1 is 300 m with a profile point at 150 m: access points at 100 and 200 m
+    off = np.array([0, 1, 1, 1, 1])
+    r = gravity([10.0, 13.0, 13.0, 13.0, 13.0], length=(300.0, 50.0, 50.0, 50.0), profile_offsets=off,
+                profile_station_m=np.array([150.0]), profile_ground_m=np.array([12.0]))
+    # hand: linear between (0, 10) and (150, 12), then (150, 12) and (300, 13)
+    np.testing.assert_allclose(r.access_points["ground_m"], [10.0 + 2.0 * 100 / 150, 12.0 + 1.0 * 50 / 150])

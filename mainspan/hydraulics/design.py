@@ -298,6 +298,21 @@ def _oriented_profiles(net, length_m, ground, profile_offsets, profile_station_m
     return off, st_all[srt], gr_all[srt]
 
 
+def _profile_at(off, station, value, length, link, chainage):
+    """Linear interpolation of a per-link profile at (link, chainage) pairs, vectorised."""
+    if link.size == 0:
+        return np.zeros(0)
+    shift = np.concatenate([[0.0], np.cumsum(length + 1.0)[:-1]])  # links laid end to end, 1 m apart
+    plink = np.repeat(np.arange(off.size - 1), np.diff(off))
+    flat = station + shift[plink]
+    x = chainage + shift[link]
+    hi = np.clip(np.searchsorted(flat, x, side="right"), off[link] + 1, off[link + 1] - 1)
+    lo = hi - 1
+    span = flat[hi] - flat[lo]
+    t = np.where(span > 0, (x - flat[lo]) / np.where(span > 0, span, 1.0), 0.0)
+    return value[lo] + t * (value[hi] - value[lo])
+
+
 def _segment_mean(off, station, value):
     """Length-weighted mean of a piecewise-linear profile value per link (trapezoid rule)."""
     L = off.size - 1
@@ -443,13 +458,22 @@ def design_network(
         hgl, root_hgl = hydraulic_grade(net, sized.headloss_m, elev, source_head_m=src_arg, min_pressure_m=s.min_pressure_m)
         pos = np.empty(n, np.int64)
         pos[net.roots] = np.arange(net.roots.size)
-        head = hgl - elev
-        static = root_hgl[pos[net.root_of]] - elev
         # pressure along each link's profile: HGL falls linearly with distance
         plink = np.repeat(np.arange(L), np.diff(off))
         frac = np.where(plan[plink] > 0, st / plan[plink], 0.0)
         hgl_s = hgl[net.from_node][plink] - sized.headloss_m[plink] * frac
         p_min = np.minimum.reduceat(hgl_s - gr, off[:-1]) if L else np.zeros(0)
+        if src_arg is None and L:
+            # a solved source head must also serve high ground between nodes: lift each
+            # tree's grade line by its largest shortfall along the profiles
+            short = np.zeros(n)
+            np.maximum.at(short, net.root_of[net.from_node], s.min_pressure_m - p_min)
+            lift = short[net.root_of]
+            hgl = hgl + lift
+            root_hgl = root_hgl + short[net.roots]
+            p_min = p_min + lift[net.from_node]
+        head = hgl - elev
+        static = root_hgl[pos[net.root_of]] - elev
         static_max = np.maximum.reduceat(root_hgl[pos[net.root_of[net.from_node]]][plink] - gr, off[:-1]) if L else np.zeros(0)
         rating = cat.rating_m[pipe]
         node_rating = np.full(n, np.inf)
@@ -542,7 +566,7 @@ def design_network(
         ap_ch = plan[ap_link] * ap_k / (n_ap[ap_link] + 1)  # from from_node (downstream)
         ap_frac = ap_ch / plan[ap_link]
         p0, p1 = xy[net.from_node[ap_link]], xy[net.to_node[ap_link]]
-        ap_ground = np.array([np.interp(c, st[off[k]:off[k + 1]], gr[off[k]:off[k + 1]]) for k, c in zip(ap_link, ap_ch)]) if ap_link.size else np.zeros(0)
+        ap_ground = _profile_at(off, st, gr, plan, ap_link, ap_ch)
         access = {
             "link": ap_link,
             "chainage_m": ap_ch,
