@@ -126,9 +126,11 @@ def main(argv=None):
         # 1. full costing (first, so the process's peak RSS is the costing's)
         tracemalloc.start()
         t = time.perf_counter()
-        lc = price_links(xy, edges, working_crs=CRS, terrain=dem, land_cost=cost,
-                         weights=CostWeights(climb=5.0, descent=1.0, steep_slope_pct=10.0,
-                                             steep_per_m=20.0), sample_spacing_m=spacing)
+        with open_surface(dem, working_crs=CRS) as sd, open_surface(cost, working_crs=CRS) as sc:
+            lc = price_links(xy, edges, working_crs=CRS, terrain=sd, land_cost=sc,
+                             weights=CostWeights(climb=5.0, descent=1.0, steep_slope_pct=10.0,
+                                                 steep_per_m=20.0), sample_spacing_m=spacing)
+            reads = (sd.n_window_reads, sd._ntr * sd._ntc, sc.n_window_reads, sd.tile_shape)
         t_cost = time.perf_counter() - t
         _, peak = tracemalloc.get_traced_memory()
         tracemalloc.stop()
@@ -142,7 +144,9 @@ def main(argv=None):
               "links/s)")
         print(f"            {total_samples:,} bilinear terrain samples + ~{crossings:,} land-cost "
               f"cell crossings = {(total_samples + crossings) / t_cost:,.0f} per s")
-        print(f"            impassable: {lc.n_impassable}, total cost {lc.total.sum():,.0f}")
+        print(f"            impassable: {lc.n_impassable}, total cost {lc.total.sum():,.0f}; "
+              f"window reads: DEM {reads[0]}, land cost {reads[2]} (tiles of {reads[3][0]}x"
+              f"{reads[3][1]}: {reads[1]} per raster)")
         print(f"            memory: tracemalloc peak {peak / 2**20:,.0f} MiB; max RSS "
               f"{rss1:,.0f} MiB (before costing {rss0:,.0f} MiB; a float64 copy of one raster "
               f"would be {n_cells * n_cells * 8 / 2**20:,.0f} MiB)")

@@ -339,9 +339,9 @@ def test_windowed_reads_equal_whole_reads(tmp_path, monkeypatch):
     shapes = []
     orig = Surface._read_window
 
-    def spy(self, row0, col0, nrows, ncols):
+    def spy(self, row0, col0, nrows, ncols, **kw):
         shapes.append((nrows, ncols))
-        return orig(self, row0, col0, nrows, ncols)
+        return orig(self, row0, col0, nrows, ncols, **kw)
 
     monkeypatch.setattr(Surface, "_read_window", spy)
     small = open_surface(p, working_crs=UTM33, max_memory_mb=0.1)
