@@ -22,6 +22,7 @@ _LAZY = {
     "Sites": "sites", "read_sites": "sites", "sites_from_arrays": "sites",
     "Tree": "spanning", "prim_tree": "spanning", "certify_tree": "spanning",
     "build_candidates": "candidates", "show_versions": "versions",
+    "run_scenarios": "scenarios", "write_scenarios": "scenarios", "load_project": "project",
 }
 
 __all__ = sorted([

@@ -21,7 +21,8 @@ import pyproj
 from ._version import __version__
 from .errors import CertificateError, DisconnectedError, InputError
 
-__all__ = ["Layout", "plan_layout", "read_layout", "file_sha256"]
+__all__ = ["Layout", "Profiles", "plan_layout", "read_layout", "file_sha256", "site_elevations",
+           "grow_tree", "assemble_layout"]
 
 
 @dataclass
@@ -343,7 +344,6 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
     from .candidates import build_candidates
     from .costs import CostWeights, node_elevations, price_links
     from .sites import Sites, read_sites
-    from .spanning import certify_tree, prim_tree
 
     t0 = time.perf_counter()
     say = progress or (lambda *a: None)
@@ -373,8 +373,13 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
     edges = cands.edges
     say("candidates", 1, 1)
 
+    surf = None
+    if terrain is not None:
+        from .surfaces import Surface, open_surface
+        surf = terrain if isinstance(terrain, Surface) else open_surface(
+            terrain, working_crs=sites.crs, raster_crs=raster_crs)
     say("costs", 0, 1)
-    costs = price_links(sites.xy, edges, working_crs=sites.crs, terrain=terrain,
+    costs = price_links(sites.xy, edges, working_crs=sites.crs, terrain=surf,
                         land_cost=land_cost, cost_expression=cost_expression,
                         class_costs=class_costs, weights=weights, on_nodata=on_nodata,
                         sample_spacing_m=sample_spacing_m, raster_crs=raster_crs,
@@ -382,49 +387,108 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
     say("costs", 1, 1)
 
     # Node elevations: DEM, or the sites' own Z when asked (and where given).
-    elev = np.full(n, np.nan)
-    outside_ids = []
-    if terrain is not None:
-        elev = node_elevations(sites.xy, terrain, working_crs=sites.crs, raster_crs=raster_crs)
-        outside = ~np.isfinite(elev)
-        if use_site_z:
-            has = np.isfinite(sites.elevation)
-            elev = np.where(has, sites.elevation, elev)
-            outside &= ~has
-        if outside.any():
-            outside_ids = [str(v) for v in sites.node_id[outside]]
-            raise InputError(
-                f"{len(outside_ids)} site(s) lie outside the terrain raster or on nodata: "
-                f"{', '.join(outside_ids[:8])}{' …' if len(outside_ids) > 8 else ''}; extend the "
-                "DEM, remove those sites, or give their Z with --use-site-z")
-    elif use_site_z:
-        elev = sites.elevation.copy()
+    dem_elev = None
+    if surf is not None:
+        dem_elev = node_elevations(sites.xy, surf)
+    elev = site_elevations(sites, dem_elev, use_site_z=use_site_z)
+
+    say("tree", 0, 1)
+    tree, cert, directed = grow_tree(sites, edges, costs, elev, root_idx, layout=layout,
+                                     allow_forest=allow_forest, design=design)
+    say("tree", 1, 1)
+    land_paths = land_cost if isinstance(land_cost, dict) else (
+        {"land_cost": land_cost} if land_cost is not None else {})
+    params = {
+        "candidates": str(candidates), "k": str(k),
+        "max_link_m": "" if max_link_m is None else f"{max_link_m:g}",
+        "terrain": "" if terrain is None else os.fspath(getattr(terrain, "path", terrain)),
+        "land_cost": "; ".join(f"{k_}={os.fspath(v)}" for k_, v in land_paths.items()),
+        "cost_expression": cost_expression or "", "on_nodata": on_nodata,
+        "weights": _fmt_dataclass(weights), "layout": layout,
+    }
+    inputs = [("sites", sites.path), ("terrain", getattr(terrain, "path", terrain)),
+              *land_paths.items()]
+    lay = assemble_layout(sites, cands, costs, elev, tree, cert, directed,
+                          terrain_surface=surf, sample_spacing_m=sample_spacing_m,
+                          system=system, design=design, params=params, inputs=inputs,
+                          progress=say)
+    if extra_run_info:
+        lay.run_info.update({str(k_): str(v) for k_, v in extra_run_info.items()})
+    lay.elapsed_s = time.perf_counter() - t0
+    return lay
+
+
+def site_elevations(sites, dem_elev=None, *, use_site_z=False):
+    """Node elevations: the DEM's, or the sites' own Z where asked and given.
+
+    With a DEM, a site it does not cover (and that has no Z of its own when
+    ``use_site_z``) is an error listing the sites by id.
+    """
+    if dem_elev is None:
+        return sites.elevation.copy() if use_site_z else np.full(sites.n, np.nan)
+    elev = np.asarray(dem_elev, float)
+    outside = ~np.isfinite(elev)
+    if use_site_z:
+        has = np.isfinite(sites.elevation)
+        elev = np.where(has, sites.elevation, elev)
+        outside &= ~has
+    if outside.any():
+        ids = [str(v) for v in sites.node_id[outside]]
+        raise InputError(
+            f"{len(ids)} site(s) lie outside the terrain raster or on nodata: "
+            f"{', '.join(ids[:8])}{' …' if len(ids) > 8 else ''}; extend the DEM, remove "
+            "those sites, or give their Z with --use-site-z")
+    return elev
+
+
+def grow_tree(sites, edges, costs, elev, root_idx, *, layout="tree", allow_forest=False,
+              design=None, certify=True):
+    """Grow the tree over the passable candidates.
+
+    ``layout="tree"``: Prim's tree plus its optimality certificate (a
+    failing certificate raises :class:`CertificateError`); ``"gravity"``:
+    the minimum arborescence towards the outlet on direction-dependent costs.
+
+    Returns
+    -------
+    (Tree over candidate indices, Certificate or None, dict or None)
+    """
+    from .spanning import certify_tree, prim_tree
 
     passable = np.asarray(costs.passable, bool)
     keep = np.flatnonzero(passable)
     w_all = np.asarray(costs.total, float)
-    say("tree", 0, 1)
-    directed_info = None
     if layout == "gravity":
-        tree, directed_info = _gravity_tree(sites, edges, keep, w_all, costs, elev, root_idx,
-                                            design)
-        cert = None
-    else:
-        sub_edges = edges[keep]
-        try:
-            tree_k = prim_tree(n, sub_edges, w_all[keep], roots=root_idx,
-                               allow_forest=allow_forest)
-        except DisconnectedError as exc:
-            raise _disconnected_message(sites, exc, int((~passable).sum())) from None
-        cert = certify_tree(n, sub_edges, w_all[keep], tree_k)
-        if not cert.ok:
-            raise CertificateError(
-                f"optimality certificate failed at candidate link {cert.violating_edge}: the "
-                "tree is not minimum over the candidates; this is a bug, please report it")
-        tree = _remap_tree(tree_k, keep)
-    say("tree", 1, 1)
+        tree, directed = _gravity_tree(sites, edges, keep, w_all, costs, elev, root_idx, design)
+        return tree, None, directed
+    sub = edges[keep]
+    try:
+        tree_k = prim_tree(sites.n, sub, w_all[keep], roots=root_idx, allow_forest=allow_forest)
+    except DisconnectedError as exc:
+        raise _disconnected_message(sites, exc, int((~passable).sum())) from None
+    if not certify:
+        return _remap_tree(tree_k, keep), None, None
+    cert = certify_tree(sites.n, sub, w_all[keep], tree_k)
+    if not cert.ok:
+        raise CertificateError(
+            f"optimality certificate failed at candidate link {cert.violating_edge}: the "
+            "tree is not minimum over the candidates; this is a bug, please report it")
+    return _remap_tree(tree_k, keep), cert, None
 
-    # Links in grow order, oriented from the root.
+
+def assemble_layout(sites, cands, costs, elev, tree, cert=None, directed=None, *,
+                    terrain_surface=None, sample_spacing_m=None, system=None, design=None,
+                    params=None, inputs=(), progress=None):
+    """Turn a grown tree into a :class:`Layout`: links in grow order, nodes, design, run_info.
+
+    Links are oriented from the root (``from_node`` nearer the root); the
+    direction-dependent components (``z_from_m``/``z_to_m``,
+    ``climb_m``/``descent_m``) are swapped where the candidate was stored the
+    other way round.
+    """
+    say = progress or (lambda *a: None)
+    n = sites.n
+    edges = cands.edges
     order = np.asarray(tree.order, dtype=np.int64)
     child = order[tree.parent[order] >= 0]
     parent = tree.parent[child]
@@ -440,21 +504,16 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
         "candidate_index": eidx.astype(np.int64),
     }
     for name, arr in comp.items():
-        a = np.asarray(arr)[eidx]
-        links[name] = a
-    if "z_from_m" in comp:
-        zf, zt = links["z_from_m"].copy(), links["z_to_m"].copy()
-        links["z_from_m"] = np.where(flip, zt, zf)
-        links["z_to_m"] = np.where(flip, zf, zt)
-        if terrain is not None:
-            links["z_from_m"] = elev[parent]
-            links["z_to_m"] = elev[child]
-    if "climb_m" in comp and "descent_m" in comp:
-        c, d = links["climb_m"].copy(), links["descent_m"].copy()
-        links["climb_m"] = np.where(flip, d, c)
-        links["descent_m"] = np.where(flip, c, d)
-    links["cost"] = w_all[eidx] if directed_info is None else directed_info["cost"][child]
-    links["max_slope_pct"] = links.get("max_slope_pct", np.full(L, np.nan))
+        links[name] = np.asarray(arr)[eidx]
+    for a, b in (("z_from_m", "z_to_m"), ("climb_m", "descent_m")):
+        if a in comp and b in comp:
+            va, vb = links[a].copy(), links[b].copy()
+            links[a], links[b] = np.where(flip, vb, va), np.where(flip, va, vb)
+    if terrain_surface is not None:
+        links["z_from_m"], links["z_to_m"] = elev[parent], elev[child]
+    w_all = np.asarray(costs.total, float)
+    links["cost"] = w_all[eidx] if directed is None else directed["cost"][child]
+    links.setdefault("max_slope_pct", np.full(L, np.nan))
 
     link_of_node = np.full(n, -1, dtype=np.int64)
     link_of_node[child] = np.arange(L)
@@ -464,33 +523,32 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
         "role": sites.role.astype(str),
         "demand_lps": sites.demand.astype(float),
         "elevation_m": elev,
-        "parent_node": np.where(tree.parent >= 0, sites.node_id[np.maximum(tree.parent, 0)], "")
-        .astype(str),
+        "parent_node": np.where(tree.parent >= 0, sites.node_id[np.maximum(tree.parent, 0)],
+                                "").astype(str),
         "hops_to_root": hops,
         "cost_to_root": cost_to_root,
     }
-    link_ends = np.column_stack([parent, child]).astype(np.int64)
-
     profiles = None
-    if terrain is not None and L:
-        from .surfaces import open_surface
-        from .layout import Profiles as _P
-        surf = open_surface(terrain, working_crs=sites.crs, raster_crs=raster_crs)
-        off, st, z = surf.profiles(sites.xy[parent], sites.xy[child], spacing_m=sample_spacing_m)
-        profiles = _P(np.asarray(off, np.int64), np.asarray(st, float), np.asarray(z, float))
-
+    if terrain_surface is not None and L:
+        off, st, z = terrain_surface.profiles(sites.xy[parent], sites.xy[child],
+                                              spacing_m=sample_spacing_m)
+        profiles = Profiles(np.asarray(off, np.int64), np.asarray(st, float),
+                            np.asarray(z, float))
     lay = Layout(crs=sites.crs, nodes=nodes, node_xy=sites.xy.copy(), links=links,
-                 link_ends=link_ends, profiles=profiles, sites=sites, candidates=cands,
-                 costs=costs, tree=tree, certificate=cert)
-
+                 link_ends=np.column_stack([parent, child]).astype(np.int64),
+                 profiles=profiles, sites=sites, candidates=cands, costs=costs, tree=tree,
+                 certificate=cert)
     if system is not None:
         say("design", 0, 1)
         _design(lay, system, design, tree)
         say("design", 1, 1)
+    lay.run_info = _run_info(lay, sites, cands, costs, tree, cert, directed, system,
+                             params or {}, inputs)
+    return lay
 
+
+def _run_info(lay, sites, cands, costs, tree, cert, directed, system, params, inputs):
     kmin, kmax = _scale(sites)
-    land_paths = land_cost if isinstance(land_cost, dict) else (
-        {"land_cost": land_cost} if land_cost is not None else {})
     info = {
         "tool": "mainspan",
         "version": __version__,
@@ -502,24 +560,18 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
         "grid_scale_factor_max": f"{kmax:.8f}",
         "sites": str(sites.path or ""),
         "sites_layer": str(sites.layer or ""),
-        "n_sites": str(n),
+        "n_sites": str(sites.n),
         "merged_sites": "; ".join(f"{a}<-{b}" for a, b in sites.merged),
-        "candidates": str(candidates),
-        "k": str(k),
-        "max_link_m": "" if max_link_m is None else f"{max_link_m:g}",
-        "n_candidates": str(len(edges)),
+        "n_candidates": str(len(cands.edges)),
         "n_dropped_long": str(getattr(cands, "n_dropped_long", 0)),
-        "n_impassable": str(int((~passable).sum())),
-        "terrain": "" if terrain is None else os.fspath(terrain),
-        "land_cost": "; ".join(f"{k_}={os.fspath(v)}" for k_, v in land_paths.items()),
-        "cost_expression": cost_expression or "",
-        "on_nodata": on_nodata,
-        "weights": _fmt_dataclass(weights),
+        "n_impassable": str(int((~np.asarray(costs.passable, bool)).sum())),
+    }
+    info.update(params)
+    info.update({
         "roots": ", ".join(sites.node_id[np.asarray(tree.roots, np.int64)].astype(str)),
         "n_roots": str(len(tree.roots)),
-        "layout": layout,
         "system": system or "",
-        "n_links": str(L),
+        "n_links": str(lay.n_links),
         "total_length_m": f"{lay.total('length_m'):.3f}",
         "total_cost": f"{lay.total('cost'):.3f}",
         "certificate": ("cycle property holds for all "
@@ -528,26 +580,18 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
                         "not applicable (directed arborescence; optimality by Edmonds)"
                         if cert is None else "FAILED"),
         "certificate_ok": "" if cert is None else str(bool(cert.ok)).lower(),
-        "elapsed_s": "",  # filled below but excluded from determinism checks
-    }
-    for name, p in (("sites", sites.path), ("terrain", terrain)):
-        info.update(_inputs_info([(name, p)]))
-    info.update(_inputs_info(list(land_paths.items())))
+    })
+    info.update(_inputs_info(list(inputs)))
     if lay.design is not None:
         for k_, v in getattr(lay.design, "summary", {}).items():
             info[f"design:{k_}"] = str(v)
         info["design_settings"] = _fmt_dataclass(lay.design_settings)
-    if directed_info is not None:
-        a, b = directed_info["arborescence_cost"], directed_info["prim_cost_same_pricing"]
+    if directed is not None:
+        a, b = directed["arborescence_cost"], directed["prim_cost_same_pricing"]
         info["gravity_layout_cost"] = f"{a:.3f}"
         info["prim_layout_cost_same_pricing"] = f"{b:.3f}"
         info["gravity_layout_saving_pct"] = f"{100 * (b - a) / b:.2f}" if b > 0 else "0"
-    if extra_run_info:
-        info.update({str(k_): str(v) for k_, v in extra_run_info.items()})
-    info.pop("elapsed_s")
-    lay.run_info = info
-    lay.elapsed_s = time.perf_counter() - t0
-    return lay
+    return info
 
 
 def _disconnected_message(sites, exc, n_impassable):
@@ -615,12 +659,17 @@ def _design(lay, system, design, tree):
         profile_ground_m=None if p is None else p.ground_m,
         land_cost=None if land is None else np.asarray(land, float),
         settings=design)
+    ident = ("link_id", "from_node", "to_node", "grow_order", "candidate_index", "node_id",
+             "role", "demand_lps", "elevation_m", "parent_node")
     for k_, v in res.link_fields.items():
+        if k_ in ident:      # the layout's own identity columns are never replaced
+            continue
         if len(v) != L:
             raise RuntimeError(f"design field {k_} has {len(v)} rows for {L} links")
         lay.links[k_] = v
     for k_, v in res.node_fields.items():
-        lay.nodes[k_] = v
+        if k_ not in ident:
+            lay.nodes[k_] = v
     if res.quantities:
         lay.tables["quantities"] = res.quantities
     lay.design = res

@@ -393,47 +393,19 @@ def _weights(plan):
 
 def _node_elevations(bench, sites_key, sites, plan):
     """Node elevations as plan_layout sets them (DEM, or the sites' Z when asked)."""
-    use_site_z = plan.get("use_site_z", False)
-    elev = bench.elevations(sites_key, sites, plan)
-    if plan.get("terrain") is not None:
-        outside = ~np.isfinite(elev)
-        if use_site_z:
-            has = np.isfinite(sites.elevation)
-            elev = np.where(has, sites.elevation, elev)
-            outside &= ~has
-        if outside.any():
-            ids = [str(v) for v in sites.node_id[outside]]
-            raise InputError(
-                f"{len(ids)} site(s) lie outside the terrain raster or on nodata: "
-                f"{', '.join(ids[:8])}{' …' if len(ids) > 8 else ''}; extend the DEM, remove "
-                "those sites, or give their Z with use_site_z")
-    elif use_site_z:
-        elev = sites.elevation.copy()
-    return elev
+    from .layout import site_elevations
+
+    dem = bench.elevations(sites_key, sites, plan) if plan.get("terrain") is not None else None
+    return site_elevations(sites, dem, use_site_z=plan.get("use_site_z", False))
 
 
 def _grow(sites, edges, costs, elev, root_idx, plan, *, certify=True):
     """Tree over the passable candidates: Prim (+ certificate) or the gravity arborescence."""
-    from .layout import _gravity_tree, _remap_tree
-    from .spanning import certify_tree, prim_tree
+    from .layout import grow_tree
 
-    keep = np.flatnonzero(np.asarray(costs.passable, bool))
-    w_all = np.asarray(costs.total, float)
-    if plan.get("layout", "tree") == "gravity":
-        tree, directed = _gravity_tree(sites, edges, keep, w_all, costs, elev, root_idx,
-                                       plan.get("design"))
-        return tree, None, directed
-    sub = edges[keep]
-    tree_k = prim_tree(sites.n, sub, w_all[keep], roots=root_idx,
-                       allow_forest=plan.get("allow_forest", False))
-    cert = None
-    if certify:
-        cert = certify_tree(sites.n, sub, w_all[keep], tree_k)
-        if not cert.ok:
-            raise CertificateError(
-                f"optimality certificate failed at candidate link {cert.violating_edge}: the "
-                "tree is not minimum over the candidates; this is a bug, please report it")
-    return _remap_tree(tree_k, keep), cert, None
+    return grow_tree(sites, edges, costs, elev, root_idx, layout=plan.get("layout", "tree"),
+                     allow_forest=plan.get("allow_forest", False), design=plan.get("design"),
+                     certify=certify)
 
 
 def _tree_links(tree):
@@ -444,12 +416,9 @@ def _tree_links(tree):
 
 
 def _assemble(bench, sites, cands, costs, elev, plan, *, name, description):
-    """A Layout from shared stages, with the links/nodes of :func:`plan_layout`."""
-    from ._version import __version__
-    from .layout import Layout, Profiles, _design, _fmt_dataclass, _inputs_info, _path_sums, _scale
+    """A Layout from shared stages, assembled exactly as :func:`plan_layout` does."""
+    from .layout import _fmt_dataclass, assemble_layout
 
-    n = sites.n
-    edges = cands.edges
     system, layout_kind = plan.get("system"), plan.get("layout", "tree")
     if layout_kind not in ("tree", "gravity"):
         raise InputError(f"[tree] layout: must be 'tree' or 'gravity', got {layout_kind!r}")
@@ -457,80 +426,28 @@ def _assemble(bench, sites, cands, costs, elev, plan, *, name, description):
         raise InputError(f"[design] system: must be 'pressure' or 'gravity', got {system!r}")
     roots = plan.get("roots")
     root_idx = sites.index_of(roots) if roots else sites.default_roots()
-    tree, cert, directed = _grow(sites, edges, costs, elev, root_idx, plan)
-    child, parent, eidx = _tree_links(tree)
-    L = len(child)
-    flip = edges[eidx, 0] != parent
-    comp = costs.components
-    links = {"link_id": np.arange(1, L + 1, dtype=np.int64),
-             "from_node": sites.node_id[parent].astype(str),
-             "to_node": sites.node_id[child].astype(str),
-             "grow_order": np.arange(1, L + 1, dtype=np.int64),
-             "candidate_index": eidx.astype(np.int64)}
-    for k, arr in comp.items():
-        links[k] = np.asarray(arr)[eidx]
-    links["z_from_m"] = np.where(flip, links["z_to_m"], links["z_from_m"])
-    links["z_to_m"] = np.where(flip, comp["z_from_m"][eidx], comp["z_to_m"][eidx])
-    if plan.get("terrain") is not None:
-        links["z_from_m"], links["z_to_m"] = elev[parent], elev[child]
-    links["climb_m"] = np.where(flip, comp["descent_m"][eidx], comp["climb_m"][eidx])
-    links["descent_m"] = np.where(flip, comp["climb_m"][eidx], comp["descent_m"][eidx])
-    links["cost"] = (np.asarray(costs.total, float)[eidx] if directed is None
-                     else directed["cost"][child])
-    link_of_node = np.full(n, -1, dtype=np.int64)
-    link_of_node[child] = np.arange(L)
-    hops, cost_to_root = _path_sums(tree.parent, np.asarray(tree.order, np.int64),
-                                    link_of_node, links["cost"])
-    nodes = {"node_id": sites.node_id.astype(str), "role": sites.role.astype(str),
-             "demand_lps": sites.demand.astype(float), "elevation_m": elev,
-             "parent_node": np.where(tree.parent >= 0,
-                                     sites.node_id[np.maximum(tree.parent, 0)], "").astype(str),
-             "hops_to_root": hops, "cost_to_root": cost_to_root}
-    profiles = None
-    if plan.get("terrain") is not None and L:
-        surf = bench.surface(plan["terrain"], crs=sites.crs, raster_crs=plan.get("raster_crs"),
+    tree, cert, directed = _grow(sites, cands.edges, costs, elev, root_idx, plan)
+    terrain = plan.get("terrain")
+    surf = None
+    if terrain is not None:
+        surf = bench.surface(terrain, crs=sites.crs, raster_crs=plan.get("raster_crs"),
                              name="terrain")
-        off, st, z = surf.profiles(sites.xy[parent], sites.xy[child],
-                                   spacing_m=plan.get("sample_spacing_m"))
-        profiles = Profiles(np.asarray(off, np.int64), np.asarray(st, float),
-                            np.asarray(z, float))
-    lay = Layout(crs=sites.crs, nodes=nodes, node_xy=sites.xy.copy(), links=links,
-                 link_ends=np.column_stack([parent, child]).astype(np.int64), profiles=profiles,
-                 sites=sites, candidates=cands, costs=costs, tree=tree, certificate=cert)
-    if system is not None:
-        _design(lay, system, plan.get("design"), tree)
     land = plan.get("land_cost")
     land = land if isinstance(land, dict) else ({} if land is None else {"land_cost": land})
-    lay.run_info = {
-        "tool": "mainspan", "version": __version__, "scenario": name,
-        "scenario_description": description, "working_crs": sites.crs.name,
-        "working_crs_epsg": str(sites.crs.to_epsg() or ""), "sites": str(sites.path or ""),
-        "n_sites": str(n), "candidates": str(cands.method), "n_candidates": str(len(edges)),
-        "n_impassable": str(int(costs.n_impassable)),
-        "terrain": "" if plan.get("terrain") is None else os.fspath(plan["terrain"]),
+    params = {
+        "scenario": name, "scenario_description": description,
+        "candidates": str(cands.method), "k": str(plan.get("k", 8)),
+        "max_link_m": "" if plan.get("max_link_m") is None else f"{plan['max_link_m']:g}",
+        "terrain": "" if terrain is None else os.fspath(terrain),
         "land_cost": "; ".join(f"{k}={os.fspath(v)}" for k, v in land.items()),
         "cost_expression": plan.get("cost_expression") or "",
-        "on_nodata": plan.get("on_nodata", "barrier"), "weights": _fmt_dataclass(_weights(plan)),
-        "roots": ", ".join(sites.node_id[np.asarray(tree.roots, np.int64)].astype(str)),
-        "n_roots": str(len(tree.roots)), "layout": layout_kind, "system": system or "",
-        "n_links": str(L), "total_length_m": f"{lay.total('length_m'):.3f}",
-        "total_cost": f"{lay.total('cost'):.3f}",
-        "certificate": ("cycle property holds for all "
-                        f"{cert.n_checked} non-tree candidates (min margin "
-                        f"{cert.worst_margin:.6g})" if cert is not None else
-                        "not applicable (directed arborescence; optimality by Edmonds)"),
-        "certificate_ok": "" if cert is None else str(bool(cert.ok)).lower(),
+        "on_nodata": plan.get("on_nodata", "barrier"),
+        "weights": _fmt_dataclass(_weights(plan)), "layout": layout_kind,
     }
-    kmin, kmax = _scale(sites)
-    lay.run_info.update({"working_crs_reason": sites.crs_reason,
-                         "working_crs_wkt": sites.crs.to_wkt(),
-                         "grid_scale_factor_min": f"{kmin:.8f}",
-                         "grid_scale_factor_max": f"{kmax:.8f}"})
-    lay.run_info.update(_inputs_info([("sites", sites.path), ("terrain", plan.get("terrain")),
-                                      *land.items()]))
-    if lay.design is not None:
-        for k, v in getattr(lay.design, "summary", {}).items():
-            lay.run_info[f"design:{k}"] = str(v)
+    lay = assemble_layout(sites, cands, costs, elev, tree, cert, directed,
+                          terrain_surface=surf, sample_spacing_m=plan.get("sample_spacing_m"),
+                          system=system, design=plan.get("design"), params=params,
+                          inputs=[("sites", sites.path), ("terrain", terrain), *land.items()])
     return lay, root_idx
 
 
