@@ -104,19 +104,42 @@ class BuilderContract:
 class TestDelaunay(BuilderContract):
     method = "delaunay"
 
-    def test_matches_geos_delaunay(self):
-        # reference: GEOS's own Delaunay triangulation (shapely.delaunay_triangles)
+    def test_matches_independent_delaunay(self):
+        # references: scipy's Qhull with its default options, and GEOS (shapely) read as lines
+        from scipy.spatial import Delaunay
+
         xy = random_xy(300, seed=7)
         c = build_candidates(xy)
+        s = Delaunay(xy).simplices
+        ref = {tuple(sorted(p)) for t in s.tolist() for p in ((t[0], t[1]), (t[1], t[2]),
+                                                               (t[0], t[2]))}
+        assert set(map(tuple, c.edges.tolist())) == ref
         lines = shapely.get_parts(shapely.delaunay_triangles(shapely.multipoints(xy),
                                                              only_edges=True))
         index = {tuple(p): i for i, p in enumerate(xy.tolist())}
-        ref = set()
+        geos = set()
         for line in lines:
             a, b = shapely.get_coordinates(line).tolist()
             i, j = index[tuple(a)], index[tuple(b)]
-            ref.add((min(i, j), max(i, j)))
-        assert set(map(tuple, c.edges.tolist())) == ref
+            geos.add((min(i, j), max(i, j)))
+        assert geos == ref
+
+    def test_backends_agree_and_geos_check_refuses_doubtful_input(self):
+        from mainspan.candidates import _geos, _qhull
+
+        xy = random_xy(2000, seed=14)
+        idx = np.arange(len(xy))
+        g, q = _geos(xy, idx), _qhull(xy, idx)
+        assert g is not None
+        assert np.array_equal(g[0][np.lexsort(g[0].T[::-1])], q[0][np.lexsort(q[0].T[::-1])])
+        assert np.array_equal(g[1], q[1])
+        # coincident points and points along a hull edge are left to Qhull
+        assert _geos(np.concatenate([xy, xy[:1]]), np.arange(len(xy) + 1)) is None
+        i, j = np.meshgrid(np.arange(10), np.arange(10))
+        grid = np.stack([i.ravel(), j.ravel()], 1) * 10.0 + random_xy(100, 3, 1.0)
+        grid[:10, 1] = 0.0                           # ten points on one straight hull edge
+        assert _geos(grid, np.arange(100)) is None
+        assert is_connected(100, build_candidates(grid).edges)
 
     def test_duplicate_points_are_linked(self):
         xy = random_xy(50, seed=8)
@@ -309,7 +332,8 @@ def test_builders_are_registered():
 # ------------------------------------------------------------------------------------------
 
 @pytest.mark.parametrize("case", ["uniform", "clustered", "grid", "grid_jittered"])
-def test_split_delaunay_equals_single_run(case):
+def test_split_delaunay_equals_single_run(case, monkeypatch):
+    from mainspan import candidates
     from mainspan.candidates import _qhull_split, delaunay_links
 
     rng = np.random.default_rng(13)
@@ -326,12 +350,15 @@ def test_split_delaunay_equals_single_run(case):
     n = len(xy)
     one = normalize_edges(delaunay_links(xy, split_min_points=10**12), n)
     two = normalize_edges(delaunay_links(xy, split_min_points=8), n)
+    monkeypatch.setattr(candidates, "_BACKEND", "qhull")
+    three = normalize_edges(delaunay_links(xy, split_min_points=8), n)
     if case != "grid":
         assert _qhull_split(xy) is not None      # the merge is confirmed on general input
         assert np.array_equal(one, two)
+        assert np.array_equal(one, three)
     # both are triangulations that hold a Euclidean MST (Shamos & Hoey 1975); reference
     # total from scipy's Kruskal on the full distance matrix
     ref = minimum_spanning_tree(cdist(xy, xy)).sum()
-    for e in (one, two):
+    for e in (one, two, three):
         t = prim_tree(n, e, lengths(xy, e))
         assert t.weight == pytest.approx(ref, rel=1e-9)
