@@ -583,7 +583,7 @@ def price_links(xy, edges, *, working_crs, terrain=None, land_cost=None, cost_ex
     if sample_spacing_m is not None and not (
             isinstance(sample_spacing_m, (int, float)) and math.isfinite(sample_spacing_m)
             and sample_spacing_m > 0):
-        raise InputError(f"sample_spacing_m (--sample-spacing) must be a positive length in "
+        raise InputError(f"sample_spacing_m (--sample-spacing-m) must be a positive length in "
                          f"metres; got {sample_spacing_m!r}")
     if terrain is None and (weights.climb or weights.descent or weights.steep_per_m):
         opt = next(OPTION_NAMES[k] for k in ("climb", "descent", "steep_per_m")
