@@ -14,12 +14,11 @@ So the price of "flow from ``a`` to ``b``" is the weight of the arc
 ``b → a``.  :func:`directional_link_costs` builds arcs in exactly this
 convention.
 
-The implementation is the contraction form of the algorithm: every round
-picks the cheapest arc into each node, contracts all cycles at once with
-reduced arc weights, and the choices are expanded back level by level.
-Each round is a handful of numpy sorts over the remaining arcs plus one
-compiled pass to find cycles; the number of rounds is small on the sparse,
-geometric candidate graphs of the layout stage.
+The implementation is Tarjan's O(m log m) form of the algorithm, compiled
+with numba: each (super)node keeps its entering arcs in a skew heap with
+lazy weight offsets, cycles are contracted with a union–find that can be
+rolled back, and the contracted cycles are expanded in reverse order at
+the end.
 
 References
 ----------
@@ -74,39 +73,157 @@ class DirectedLinks(NamedTuple):
 
 
 @numba.njit(cache=True)
-def _best_in(n, ev, ew, rank):  # pragma: no cover - compiled
-    """Cheapest arc into each node by (weight, rank); -1 where none."""
-    best = np.full(n, -1, np.int64)
-    for k in range(ev.shape[0]):
-        v = ev[k]
-        b = best[v]
-        if b < 0 or ew[k] < ew[b] or (ew[k] == ew[b] and rank[k] < rank[b]):
-            best[v] = k
-    return best
+def _prop(a, hl, hr, hw, hd):  # pragma: no cover - compiled
+    d = hd[a]
+    if d != 0.0:
+        hw[a] += d
+        if hl[a] >= 0:
+            hd[hl[a]] += d
+        if hr[a] >= 0:
+            hd[hr[a]] += d
+        hd[a] = 0.0
 
 
 @numba.njit(cache=True)
-def _cycles(pred, root):  # pragma: no cover - compiled
-    """Label the cycles of a functional graph ``v -> pred[v]`` (-1 = no cycle)."""
-    n = pred.shape[0]
-    stamp = np.full(n, -1, np.int64)
-    label = np.full(n, -1, np.int64)
+def _less(a, b, hw, rank):  # pragma: no cover - compiled
+    return hw[a] < hw[b] or (hw[a] == hw[b] and rank[a] < rank[b])
+
+
+@numba.njit(cache=True)
+def _merge(a, b, hl, hr, hw, hd, rank):  # pragma: no cover - compiled
+    """Top-down skew-heap merge of heaps rooted at a and b (-1 = empty)."""
+    if a < 0:
+        return b
+    if b < 0:
+        return a
+    _prop(a, hl, hr, hw, hd)
+    _prop(b, hl, hr, hw, hd)
+    if _less(b, a, hw, rank):
+        a, b = b, a
+    root = a
+    x = a
+    other = hr[x]
+    hr[x] = hl[x]
+    y = b
+    while True:
+        # merge `other` and `y` into the (now empty) left slot of x
+        if other < 0:
+            hl[x] = y
+            break
+        _prop(other, hl, hr, hw, hd)
+        if _less(y, other, hw, rank):
+            other, y = y, other
+        hl[x] = other
+        x = other
+        other = hr[x]
+        hr[x] = hl[x]
+    return root
+
+
+@numba.njit(cache=True)
+def _find(uf, v):  # pragma: no cover - compiled
+    while uf[v] != v:
+        v = uf[v]
+    return v
+
+
+@numba.njit(cache=True)
+def _tarjan(n, root, tails, heads, weights, rank):  # pragma: no cover - compiled
+    """Minimum arborescence by Tarjan's method; returns (in_arc per node, unreachable node or -1)."""
+    m = tails.shape[0]
+    hl = np.full(m, -1, np.int64)
+    hr = np.full(m, -1, np.int64)
+    hw = weights.copy()
+    hd = np.zeros(m)
+    heap = np.full(n, -1, np.int64)
+    for e in range(m):
+        heap[heads[e]] = _merge(heap[heads[e]], e, hl, hr, hw, hd, rank)
+    uf = np.arange(n)
+    size = np.ones(n, np.int64)
+    hist = np.empty(n, np.int64)  # child root of each union, for rollback
+    n_hist = 0
+    seen = np.full(n, -1, np.int64)
+    seen[root] = root
+    path = np.empty(n, np.int64)
+    q = np.empty(n, np.int64)
+    in_arc = np.full(n, -1, np.int64)
+    cyc_node = np.empty(n, np.int64)
+    cyc_time = np.empty(n, np.int64)
+    cyc_lo = np.empty(n + 1, np.int64)
+    cyc_arcs = np.empty(2 * n, np.int64)
     n_cyc = 0
+    n_cyc_arcs = 0
+    cyc_lo[0] = 0
     for s in range(n):
-        v = s
-        while v >= 0 and v != root and stamp[v] < 0:
-            stamp[v] = s
-            v = pred[v]
-        if v >= 0 and v != root and stamp[v] == s:
-            # v is on a cycle first met in this walk
-            u = v
-            while True:
-                label[u] = n_cyc
-                u = pred[u]
-                if u == v:
-                    break
-            n_cyc += 1
-    return label, n_cyc
+        u = s
+        qi = 0
+        while seen[u] < 0:
+            # drop arcs that became loops inside the supernode
+            while heap[u] >= 0 and _find(uf, tails[heap[u]]) == u:
+                e = heap[u]
+                _prop(e, hl, hr, hw, hd)
+                heap[u] = _merge(hl[e], hr[e], hl, hr, hw, hd, rank)
+            if heap[u] < 0:
+                for v in range(n):
+                    if _find(uf, v) == u:
+                        return in_arc, v
+            e = heap[u]
+            _prop(e, hl, hr, hw, hd)
+            w = hw[e]
+            heap[u] = _merge(hl[e], hr[e], hl, hr, hw, hd, rank)
+            if heap[u] >= 0:
+                hd[heap[u]] -= w  # reduced weights for the rest of u's arcs
+            q[qi] = e
+            path[qi] = u
+            qi += 1
+            seen[u] = s
+            u = _find(uf, tails[e])
+            if seen[u] == s:
+                # a cycle: contract the path back to u into one supernode
+                cyc = -1
+                end = qi
+                time = n_hist
+                while True:
+                    qi -= 1
+                    x = path[qi]
+                    cyc = _merge(cyc, heap[x], hl, hr, hw, hd, rank)
+                    a = _find(uf, u)
+                    b = _find(uf, x)
+                    if a == b:
+                        break
+                    if size[a] < size[b]:
+                        a, b = b, a
+                    uf[b] = a
+                    size[a] += size[b]
+                    hist[n_hist] = b
+                    n_hist += 1
+                u = _find(uf, u)
+                heap[u] = cyc
+                seen[u] = -1
+                cyc_node[n_cyc] = u
+                cyc_time[n_cyc] = time
+                for i in range(qi, end):
+                    cyc_arcs[n_cyc_arcs] = q[i]
+                    n_cyc_arcs += 1
+                n_cyc += 1
+                cyc_lo[n_cyc] = n_cyc_arcs
+        for i in range(qi):
+            in_arc[_find(uf, heads[q[i]])] = q[i]
+    # expand cycles, latest first, undoing the unions made since each was formed
+    for c in range(n_cyc - 1, -1, -1):
+        while n_hist > cyc_time[c]:
+            n_hist -= 1
+            b = hist[n_hist]
+            a = uf[b]
+            size[a] -= size[b]
+            uf[b] = b
+        u = cyc_node[c]
+        enter = in_arc[u]
+        for i in range(cyc_lo[c], cyc_lo[c + 1]):
+            e = cyc_arcs[i]
+            in_arc[_find(uf, heads[e])] = e
+        in_arc[_find(uf, heads[enter])] = enter
+    return in_arc, -1
 
 
 def min_arborescence(n_nodes, tails, heads, weights, *, root) -> Arborescence:
@@ -137,9 +254,12 @@ def min_arborescence(n_nodes, tails, heads, weights, *, root) -> Arborescence:
 
     Notes
     -----
-    Ties between arcs of equal weight into the same node are broken by
-    (weight, lower tail index, lower head index, lower arc index), so the
-    result is deterministic.
+    Tarjan's form of the algorithm: one skew heap of entering arcs per
+    (super)node with lazy weight offsets, and a union–find with rollback to
+    contract cycles and expand them afterwards; O(m log m) time, O(m) memory.
+    Ties between arcs of equal (reduced) weight are broken by lower tail
+    index, then lower head index, then lower arc index, so the result is
+    deterministic.
 
     Examples
     --------
@@ -171,63 +291,15 @@ def min_arborescence(n_nodes, tails, heads, weights, *, root) -> Arborescence:
     r = int(root)
     if not 0 <= r < n:
         raise InputError(f"arborescence option 'root' is {root}, outside 0..{n - 1}; pass the outlet's node index")
-
-    m = t.size
     eid = np.flatnonzero((t != h) & (h != r) & np.isfinite(w))
-    eu, ev, ew = t[eid], h[eid], w[eid]
-    # tie-break rank of each arc by (tail, head, arc index), fixed for all rounds
+    eu, ev = t[eid], h[eid]
     rank = np.empty(eid.size, np.int64)
     rank[np.lexsort((eid, ev, eu))] = np.arange(eid.size)
-    cur_n, cur_root = n, r
-    rep = np.arange(n, dtype=np.int64)  # lowest original node inside each supernode
-    levels = []
-    while True:
-        in_edge = _best_in(cur_n, ev, ew, rank)
-        lacking = np.flatnonzero(in_edge < 0)
-        lacking = lacking[lacking != cur_root]
-        if lacking.size:
-            node = int(rep[lacking].min())
-            raise InputError(
-                f"node {node} cannot be reached from root {r} by the given arcs; add an arc towards it or drop it"
-            )
-        pred = np.full(cur_n, -1, np.int64)
-        nz = np.flatnonzero(in_edge >= 0)
-        pred[nz] = eu[in_edge[nz]]
-        label, n_cyc = _cycles(pred, cur_root)
-        chosen = np.full(cur_n, -1, np.int64)
-        chosen[nz] = eid[in_edge[nz]]
-        if n_cyc == 0:
-            break
-        on_cycle = label >= 0
-        comp = np.empty(cur_n, np.int64)
-        off = np.flatnonzero(~on_cycle)
-        comp[off] = np.arange(off.size)
-        comp[on_cycle] = off.size + label[on_cycle]
-        levels.append((eid, ev, chosen, label, comp))
-        # reduced weights for arcs entering a cycle node
-        enter = on_cycle[ev]
-        ew = ew.copy()
-        ew[enter] -= ew[in_edge[ev[enter]]]
-        nu, nv = comp[eu], comp[ev]
-        keep = nu != nv
-        eid, eu, ev, ew, rank = eid[keep], nu[keep], nv[keep], ew[keep], rank[keep]
-        new_n = off.size + n_cyc
-        new_rep = np.full(new_n, np.iinfo(np.int64).max)
-        np.minimum.at(new_rep, comp, rep)
-        rep = new_rep
-        cur_root = int(comp[cur_root])
-        cur_n = new_n
-    # expand the contracted cycles, last level first
-    head_at = np.empty(m, np.int64)
-    for lev_eid, lev_ev, lev_chosen, label, comp in reversed(levels):
-        lower = np.where(label < 0, chosen[comp], lev_chosen)
-        head_at[lev_eid] = lev_ev
-        cyc_nodes = np.flatnonzero(label >= 0)
-        _, firsts = np.unique(label[cyc_nodes], return_index=True)
-        entering = chosen[comp[cyc_nodes[firsts]]]
-        lower[head_at[entering]] = entering
-        chosen = lower
-    parent_edge = chosen
+    in_arc, lost = _tarjan(n, r, eu, ev, w[eid].copy(), rank)
+    if lost >= 0:
+        raise InputError(f"node {lost} cannot be reached from root {r} by the given arcs; add an arc towards it or drop it")
+    parent_edge = np.where(in_arc >= 0, eid[np.maximum(in_arc, 0)], -1)
+    parent_edge[r] = -1
     parent = np.where(parent_edge >= 0, t[np.maximum(parent_edge, 0)], -1)
     total = float(w[parent_edge[parent_edge >= 0]].sum())
     return Arborescence(parent_edge=parent_edge, parent=parent, total_weight=total)
