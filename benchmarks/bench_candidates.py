@@ -10,9 +10,16 @@ Delaunay links as an int64 (m, 2) array of node indices, ``i < j``, sorted and u
   ``simplices`` and normalised with ``np.unique`` on ``i * n + j``;
 * GEOS: ``shapely.delaunay_triangles(multipoints, only_edges=True)`` (time of the
   triangulation only: mapping its line coordinates back to node indices is not counted);
-* ours: ``build_candidates(xy)`` (validation, local origin, Hilbert pre-sort, Qhull, links).
+* ours: ``build_candidates(xy)`` (validation, local origin, two halves triangulated in
+  parallel by GEOS -- each checked by Euler's formula, Qhull on failure -- an exact merge
+  along the cut, links normalised, plus the Hilbert node order).
 
-The link sets of ours and the baseline are checked to be identical.  Times are medians of
+The link sets of ours and the baseline are compared.  Where they differ (nearly cocircular
+points, where floating-point triangulators may pick different diagonals), each differing
+link is judged with an exact rational in-circle test (Python ``fractions``): a link is
+locally Delaunay when, for its two triangles abc and abd, d is not strictly inside the
+circle through a, b, c; a triangulation whose links are all locally Delaunay is the
+Delaunay triangulation (Delaunay's lemma, Delaunay 1934).  Times are medians of
 ``--repeat`` interleaved runs; ratios are reference time / our time.
 """
 
@@ -23,6 +30,40 @@ import statistics
 import time
 
 import numpy as np
+
+
+def _exact_locally_delaunay(xy, edges, link):
+    """Exact check that *link* (a, b) of the triangulation given by *edges* is locally Delaunay."""
+    from fractions import Fraction as Fr
+
+    a, b = (int(v) for v in link)
+    nb = {}
+    for i, j in edges[(edges[:, 0] == a) | (edges[:, 1] == a) | (edges[:, 0] == b)
+                      | (edges[:, 1] == b)].tolist():
+        nb.setdefault(i, set()).add(j)
+        nb.setdefault(j, set()).add(i)
+    common = sorted(nb.get(a, set()) & nb.get(b, set()))
+    p = {v: (Fr(float(xy[v, 0])), Fr(float(xy[v, 1]))) for v in [a, b] + common}
+
+    def orient(u, v, w):
+        return ((p[v][0] - p[u][0]) * (p[w][1] - p[u][1])
+                - (p[v][1] - p[u][1]) * (p[w][0] - p[u][0]))
+
+    def inside(u, v, w, q):  # q strictly inside the circle through u, v, w (ccw)
+        if orient(u, v, w) < 0:
+            u, v = v, u
+        r = [(p[t][0] - p[q][0], p[t][1] - p[q][1]) for t in (u, v, w)]
+        r = [(x, y, x * x + y * y) for x, y in r]
+        det = (r[0][0] * (r[1][1] * r[2][2] - r[1][2] * r[2][1])
+               - r[0][1] * (r[1][0] * r[2][2] - r[1][2] * r[2][0])
+               + r[0][2] * (r[1][0] * r[2][1] - r[1][1] * r[2][0]))
+        return det > 0
+
+    left = [c for c in common if orient(a, b, c) > 0]
+    right = [c for c in common if orient(a, b, c) < 0]
+    # checked against every common neighbour on each side (a superset of the two triangles)
+    return all(not inside(a, b, c, d) and not inside(a, b, d, c)
+               for c in left for d in right)
 
 
 def main(argv=None):
@@ -68,7 +109,19 @@ def main(argv=None):
             out[name] = fn()
             times[name].append(time.perf_counter() - t0)
     t = {k: statistics.median(v) for k, v in times.items()}
-    same = np.array_equal(out[contenders[0][0]], out["build_candidates(xy) (delaunay)"])
+    ours_e = out["build_candidates(xy) (delaunay)"]
+    base_e = out[contenders[0][0]]
+    same = np.array_equal(base_e, ours_e)
+    if not same:
+        code_o = ours_e[:, 0] * n + ours_e[:, 1]
+        code_b = base_e[:, 0] * n + base_e[:, 1]
+        only_o = ours_e[~np.isin(code_o, code_b)]
+        only_b = base_e[~np.isin(code_b, code_o)]
+        ok_o = sum(_exact_locally_delaunay(xy, ours_e, e) for e in only_o[:20])
+        ok_b = sum(_exact_locally_delaunay(xy, base_e, e) for e in only_b[:20])
+        print(f"link sets differ: {len(only_o)} links only in ours, {len(only_b)} only in the "
+              f"baseline; exact in-circle test (first 20): ours {ok_o}/{min(20, len(only_o))} "
+              f"locally Delaunay, baseline {ok_b}/{min(20, len(only_b))}")
     ours_t = t["build_candidates(xy) (delaunay)"]
     print(f"{'contender':48s} {'time s':>8s} {'ours faster by':>15s}")
     for name, _ in contenders:

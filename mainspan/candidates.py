@@ -11,6 +11,8 @@ It receives coordinates already shifted to the local origin.
 
 References
 ----------
+(Volume and page details other than Prim's and Shamos & Hoey's are from memory.)
+
 .. [1] B. Delaunay, "Sur la sphère vide", Bulletin de l'Académie des Sciences de l'URSS,
    Classe des sciences mathématiques et naturelles 6:793-800, 1934.
 .. [2] M. I. Shamos and D. Hoey, "Closest-point problems", 16th Annual IEEE Symposium on
@@ -20,6 +22,9 @@ References
    hulls", ACM Transactions on Mathematical Software 22(4):469-483, 1996 (Qhull).
 .. [4] D. Hilbert, "Über die stetige Abbildung einer Linie auf ein Flächenstück",
    Mathematische Annalen 38:459-460, 1891 (the space-filling curve used to order points).
+.. [5] L. Guibas and J. Stolfi, "Primitives for the manipulation of general subdivisions and
+   the computation of Voronoi diagrams", ACM Transactions on Graphics 4(2):74-123, 1985
+   (the incremental method GEOS implements; from memory).
 """
 
 from __future__ import annotations
@@ -536,9 +541,11 @@ _SPLIT_MIN_POINTS = 200_000
 
 @CANDIDATE_BUILDERS.register("delaunay")
 def delaunay_links(xy, *, k=8, max_link_m=None, split_min_points=None):
-    """Edges of the Delaunay triangulation (Qhull), for points pre-sorted on a Hilbert curve.
+    """Edges of the Delaunay triangulation.
 
-    From ``split_min_points`` points on (default 200,000) the plane is cut in two halves
+    The triangulation is GEOS's (shapely), accepted only when it passes the Euler-formula
+    check of ``_geos``; otherwise Qhull's (scipy), fed points in Hilbert order.  From
+    ``split_min_points`` points on (default 200,000) the plane is cut in two halves
     triangulated in parallel and merged exactly (see ``_qhull_split``); if the merge cannot
     be confirmed, one Qhull run is made instead.  Collinear points, where no triangle exists,
     fall back to the path along the line plus ``k`` nearest neighbours; points Qhull leaves
@@ -688,9 +695,10 @@ def build_candidates(xy, method="delaunay", *, k=8, max_link_m=None,
 
     Notes
     -----
-    ``delaunay`` sorts the points along a Hilbert curve before calling Qhull (insertion in
-    spatial order keeps Qhull's point location short) and reads the links from the
-    triangles.  Points on one line have no triangulation: their Delaunay graph is the path
+    ``delaunay`` triangulates with GEOS (the quad-edge incremental method), checks the result
+    covers the convex hull and uses every point (Euler's formula), and otherwise uses Qhull
+    on points sorted along a Hilbert curve.  From 200,000 points on, two halves are
+    triangulated in parallel and merged exactly.  Points on one line have no triangulation: their Delaunay graph is the path
     along the line, which is returned together with the ``k`` nearest neighbours.  Two sites
     give their one link.
 

@@ -13,6 +13,8 @@ algorithm (any correct implementation of it) returns exactly that forest.
 
 References
 ----------
+(Volume and page details other than Prim's and Shamos & Hoey's are from memory.)
+
 .. [1] R. C. Prim, "Shortest connection networks and some generalizations", Bell System
    Technical Journal 36(6):1389-1401, 1957.
 .. [2] V. Jarník, "O jistém problému minimálním", Práce moravské přírodovědecké společnosti

@@ -362,3 +362,49 @@ def test_split_delaunay_equals_single_run(case, monkeypatch):
     for e in (one, two, three):
         t = prim_tree(n, e, lengths(xy, e))
         assert t.weight == pytest.approx(ref, rel=1e-9)
+
+
+def _locally_delaunay_exact(xy, edges, a, b):
+    """Exact (rational) check that link (a, b) is locally Delaunay: no common neighbour on
+    one side lies strictly inside the circle through a, b and a common neighbour on the
+    other (Delaunay's lemma: all links locally Delaunay <=> Delaunay triangulation)."""
+    from fractions import Fraction as Fr
+
+    nb = {}
+    for i, j in edges.tolist():
+        nb.setdefault(i, set()).add(j)
+        nb.setdefault(j, set()).add(i)
+    common = nb[a] & nb[b]
+    p = {v: (Fr(float(xy[v, 0])), Fr(float(xy[v, 1]))) for v in common | {a, b}}
+
+    def orient(u, v, w):
+        return ((p[v][0] - p[u][0]) * (p[w][1] - p[u][1])
+                - (p[v][1] - p[u][1]) * (p[w][0] - p[u][0]))
+
+    def inside(u, v, w, q):
+        if orient(u, v, w) < 0:
+            u, v = v, u
+        r = [(p[t][0] - p[q][0], p[t][1] - p[q][1]) for t in (u, v, w)]
+        r = [(x, y, x * x + y * y) for x, y in r]
+        return (r[0][0] * (r[1][1] * r[2][2] - r[1][2] * r[2][1])
+                - r[0][1] * (r[1][0] * r[2][2] - r[1][2] * r[2][0])
+                + r[0][2] * (r[1][0] * r[2][1] - r[1][1] * r[2][0])) > 0
+
+    left = [c for c in common if orient(a, b, c) > 0]
+    right = [c for c in common if orient(a, b, c) < 0]
+    return all(not inside(a, b, c, d) and not inside(a, b, d, c) for c in left for d in right)
+
+
+def test_delaunay_exact_on_a_nearly_cocircular_neighbourhood():
+    # 58 points around a nearly cocircular quad found in 1e6 uniform points (seed 0), where
+    # floating-point in-circle tests can pick the wrong diagonal; judged here with exact
+    # rational arithmetic, independent of any triangulator
+    n = 1_000_000
+    xy = np.random.default_rng(0).random((n, 2)) * np.sqrt(n) * 100
+    centre = xy[[569449, 923522, 456505, 909049]].mean(axis=0)
+    sub = xy[np.hypot(*(xy - centre).T) < 400.0]
+    e = build_candidates(sub).edges
+    # a triangulation of points in general position has 3n - 3 - h links
+    from scipy.spatial import ConvexHull
+    assert len(e) == 3 * len(sub) - 3 - len(ConvexHull(sub).vertices)
+    assert all(_locally_delaunay_exact(sub, e, a, b) for a, b in e.tolist())
