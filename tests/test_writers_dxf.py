@@ -137,10 +137,10 @@ def test_layer_renames_reported(tmp_path):
 def test_safe_layer_name_unique_and_short():
     taken = set()
     for _ in range(12):
-        taken.add(safe_layer_name("x" * 40, taken))
+        taken.add(safe_layer_name("x" * 40, taken=taken))
     assert len(taken) == 12 and all(LAYER_NAME_RE.match(n) for n in taken)
     assert safe_layer_name("Main: DN 110") == "MAIN_DN_110"
-    assert safe_layer_name("MAIN_DN_110", {"MAIN_DN_110"}) == "MAIN_DN_110_2"
+    assert safe_layer_name("MAIN_DN_110", taken={"MAIN_DN_110"}) == "MAIN_DN_110_2"
 
 
 def test_refuses_overwrite_and_is_reproducible(tmp_path):

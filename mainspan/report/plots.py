@@ -17,7 +17,8 @@ References
 Horn, B.K.P. (1981) "Hill shading and the reflectance map", *Proc. IEEE*
 69(1):14–47 — slope and aspect from the 3×3 neighbourhood (here via central
 differences, ``numpy.gradient``), lit from azimuth 315°, altitude 45°.
-Wyllie, J.C. (1979) "Parallelism in random access machines", Cornell TR 79-387
+Wyllie, J.C. (1979) "The complexity of parallel computations", PhD thesis, Cornell
+University (TR 79-387) (from memory)
 — pointer jumping (path doubling) for sums along rooted trees.
 """
 
@@ -64,7 +65,7 @@ def _parent_arrays(layout):
     return parent, plink
 
 
-def distance_to_root(layout, column="length_m"):
+def distance_to_root(layout, *, column="length_m"):
     """Cumulative ``column`` (default plan length) from each node's root, by pointer jumping."""
     n = layout.n_nodes
     parent, plink = _parent_arrays(layout)
@@ -93,7 +94,7 @@ def _nearest_marked_ancestor(parent, marked):
     return up
 
 
-def longest_paths(layout, k=3):
+def longest_paths(layout, *, k=3):
     """Up to ``k`` paths (node index arrays, top to bottom): the longest root→node
     path by plan length, then repeatedly the longest branch off what is covered.
     """

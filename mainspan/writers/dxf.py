@@ -49,7 +49,7 @@ APPID = "MAINSPAN"
 _ROLE_COLORS = {"source": 1, "outlet": 1, "demand": 3, "junction": 8}   # ACI numbers
 
 
-def safe_layer_name(name, taken=()):
+def safe_layer_name(name, *, taken=()):
     """``name`` made portable: upper-case, ``A–Z 0–9 _ -`` only, ≤ 31 chars, unique.
 
     Examples
@@ -232,7 +232,7 @@ def write_dxf(layout, path, *, by="role", polylines="3d", text_height_m=None, or
         if wanted in layer_of:
             return layer_of[wanted]
         s = wanted if LAYER_NAME_RE.match(wanted) and wanted not in taken else \
-            safe_layer_name(wanted, taken)
+            safe_layer_name(wanted, taken=taken)
         if s != wanted:
             renamed[wanted] = s
         taken.add(s)
