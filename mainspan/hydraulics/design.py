@@ -380,6 +380,16 @@ def design_network(
     InputError
         On malformed inputs or settings, naming the field and entry.
 
+    Examples
+    --------
+    >>> r = design_network("gravity", xy=[[0, 0], [100, 0], [200, 0]], elevation_m=[10.0, 10.5, 11.0],
+    ...                    demand_lps=[0.0, 2.0, 3.0], node_id=["out", "a", "b"], from_node=[0, 1], to_node=[1, 2],
+    ...                    length_m=[100.0, 100.0], surface_length_m=[100.0, 100.0], roots=[0])
+    >>> r.link_fields["flow_lps"].tolist(), r.link_fields["invert_up_m"].round(2).tolist()
+    ([5.0, 3.0], [9.37, 9.9])
+    >>> r.link_fields["checks"].tolist()
+    ['low_velocity', 'low_velocity']
+
     References
     ----------
     .. [1] Recommended Standards for Water Works, §8.2.1 (minimum pressure).
