@@ -667,6 +667,10 @@ def _design(lay, system, design, tree):
         if len(v) != L:
             raise RuntimeError(f"design field {k_} has {len(v)} rows for {L} links")
         lay.links[k_] = v
+    if "invert_down_m" in lay.links and "invert_up_m" in lay.links:
+        # gravity: from_node (nearer the outlet) is the downstream end of the link
+        lay.links["invert_from_m"] = np.asarray(lay.links["invert_down_m"], float)
+        lay.links["invert_to_m"] = np.asarray(lay.links["invert_up_m"], float)
     for k_, v in res.node_fields.items():
         if k_ not in ident:
             lay.nodes[k_] = v
