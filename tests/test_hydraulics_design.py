@@ -301,3 +301,29 @@ def test_access_point_ground_follows_the_profile():
                 profile_station_m=np.array([150.0]), profile_ground_m=np.array([12.0]))
     # hand: linear between (0, 10) and (150, 12), then (150, 12) and (300, 13)
     np.testing.assert_allclose(r.access_points["ground_m"], [10.0 + 2.0 * 100 / 150, 12.0 + 1.0 * 50 / 150])
+
+
+def test_result_docstring_lists_the_fields_returned():
+    # the DesignResult docstring is the writers' contract: every field it names must be there
+    import re
+
+    from mainspan.hydraulics import DesignResult
+
+    doc = DesignResult.__doc__
+    link_doc = doc[doc.index("link_fields"):doc.index("node_fields :")]
+    node_doc = doc[doc.index("node_fields :"):doc.index("quantities :")]
+    q_doc = doc[doc.index("quantities :"):doc.index("access_points :")]
+
+    def names(text):
+        return set(re.findall(r"\b([a-z]+(?:_[a-z0-9]+)+|flow_direction|pipe|material|checks|reversed)\b", text)) - {
+            "link_fields", "node_fields", "input_link_order"}
+
+    p = pressure(DesignSettings())
+    g = gravity([10.0] * 5)
+    for r in (p, g):
+        assert set(r.link_fields) <= names(link_doc) | {"pipe", "material", "checks", "reversed"}
+        assert set(r.node_fields) <= names(node_doc) | {"checks"}
+        assert set(r.quantities) <= names(q_doc) | {"pipe", "material", "count"}
+    assert {"headloss_m", "hgl_from_m", "hgl_to_m", "pressure_min_m", "rating_m"} <= set(p.link_fields)
+    assert {"invert_up_m", "invert_down_m", "slope_pct", "depth_max_m", "cover_min_m", "capacity_lps",
+            "depth_ratio", "n_access_points"} <= set(g.link_fields)

@@ -20,6 +20,27 @@ Conventions
   of the bedding (pressure: cover + nominal size + bedding; gravity: mean
   depth to invert along the profile + bedding).  Common practice, no single
   source; prices are placeholders.
+
+Checks
+------
+Pressure links: ``no_pipe`` (no catalog pipe meets the velocity cap and
+head-loss budget; the largest is assigned), ``low_pressure`` (pressure head
+below the minimum anywhere along the link's ground profile),
+``over_rating`` (the *static* head -- source HGL minus ground, the no-flow
+case, which is the highest pressure the pipe sees -- exceeds the pipe's
+rating).  Pressure nodes: ``low_pressure``, ``over_rating`` (against the
+lowest rating of the links at the node).
+
+Gravity links: ``no_pipe`` (no catalog pipe carries the flow flowing full),
+``surcharged`` (design flow above the assigned pipe's full capacity),
+``too_deep`` (invert deeper than the maximum anywhere along the link: a
+lift station or another route is needed), ``adverse_grade`` (grade below the
+minimum for the diameter; the invert walk never produces it, the check
+guards catalogs and settings), ``low_velocity`` (velocity at the design
+flow's normal depth below the minimum -- the full-pipe minimum is already
+enforced through the minimum grade; links without flow are not flagged),
+``low_cover``.  Gravity nodes: ``too_deep``.  A root without links has a NaN
+invert.
 """
 
 from __future__ import annotations
