@@ -387,7 +387,8 @@ def design_network(
     profile_offsets, profile_station_m, profile_ground_m : array_like, optional
         Ground profile along each link in CSR form; stations measured from
         the given ``from_node``.  Without them the ground is taken as
-        straight between the end nodes.
+        straight between the end nodes.  The node elevations always give
+        the ground at both ends (stations at the very ends are replaced).
     land_cost : array_like, shape (L,), optional
         Land or easement cost per link, carried into the quantities.
     settings : DesignSettings, optional
