@@ -698,9 +698,9 @@ def build_candidates(xy, method="delaunay", *, k=8, max_link_m=None,
     ``delaunay`` triangulates with GEOS (the quad-edge incremental method), checks the result
     covers the convex hull and uses every point (Euler's formula), and otherwise uses Qhull
     on points sorted along a Hilbert curve.  From 200,000 points on, two halves are
-    triangulated in parallel and merged exactly.  Points on one line have no triangulation: their Delaunay graph is the path
-    along the line, which is returned together with the ``k`` nearest neighbours.  Two sites
-    give their one link.
+    triangulated in parallel and merged exactly.  Points on one line have no triangulation:
+    their Delaunay graph is the path along the line, which is returned together with the
+    ``k`` nearest neighbours.  Two sites give their one link.
 
     References
     ----------

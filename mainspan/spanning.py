@@ -533,8 +533,8 @@ def prim_tree(n_nodes, edges, weights, *, roots=(0,), allow_forest=False,
 
     Every root starts in the tree, as if all roots were joined to one virtual super-root at
     no cost; every other node joins the root that reaches it most cheaply.  The heap is an
-    indexed binary heap with decrease-key, compiled with numba; the run takes
-    O(m log n) time.
+    indexed 4-ary heap (a binary heap with four children per slot: half the levels) with
+    decrease-key, compiled with numba; the run takes O(m log n) time.
 
     Parameters
     ----------
