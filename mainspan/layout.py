@@ -160,7 +160,12 @@ class Layout:
                              "value": [str(v) for v in self.run_info.values()]})
         out[f"run_info{suffix}"] = info
         for name, table in self.tables.items():
-            out[f"{name}{suffix}"] = pd.DataFrame({k: _col(v) for k, v in table.items()})
+            df = pd.DataFrame({k: _col(v) for k, v in table.items()})
+            if "x" in table and "y" in table:       # a point table: write it as a layer
+                df = gpd.GeoDataFrame(df, geometry=np.asarray(
+                    shapely.points(np.asarray(table["x"], float), np.asarray(table["y"], float)),
+                    dtype=object), crs=self.crs)
+            out[f"{name}{suffix}"] = df
         if self.profiles is not None and self.n_links:
             p = self.profiles
             counts = np.diff(p.offsets)
@@ -241,10 +246,13 @@ def read_layout(path, *, suffix="") -> Layout:
         raise InputError(f"{path!r}: link refers to node {exc.args[0]!r} missing from "
                          f"nodes{suffix}; the file is damaged or not a mainspan layout") from None
     tables = {}
-    for name in ("quantities", "checks"):
+    for name in ("quantities", "checks", "access_points"):
         if f"{name}{suffix}" in names:
             t = read_table(path, f"{name}{suffix}")
-            tables[name] = {c: t[c].to_numpy() for c in t.columns}
+            geom = getattr(t, "geometry", None) if "geometry" in t.columns else None
+            tables[name] = {c: t[c].to_numpy() for c in t.columns if c != "geometry"}
+            if geom is not None:
+                tables[name]["x"], tables[name]["y"] = geom.x.to_numpy(), geom.y.to_numpy()
     profiles = None
     if f"link_profiles{suffix}" in names and len(links.get("link_id", [])):
         t = read_table(path, f"link_profiles{suffix}")
@@ -676,6 +684,12 @@ def _design(lay, system, design, tree):
             lay.nodes[k_] = v
     if res.quantities:
         lay.tables["quantities"] = res.quantities
+    ap = getattr(res, "access_points", None)
+    if ap and len(ap.get("x", ())):
+        # link index -> the layout's link_id, so the table joins to ``links``
+        table = {"link_id": np.asarray(lay.links["link_id"])[np.asarray(ap["link"], np.int64)]}
+        table.update({k: np.asarray(v) for k, v in ap.items() if k != "link"})
+        lay.tables["access_points"] = table
     lay.design = res
     lay.design_settings = design
 

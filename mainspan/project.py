@@ -14,7 +14,8 @@ Layout of a project file (all sections optional except ``[sites]``)::
     [costs]        length, land, climb, descent, steep_slope_pct, steep_per_m, fixed
     [candidates]   method, k, max_link_m, max_complete_nodes
     [tree]         roots, allow_forest, use_site_z, layout
-    [design]       system, and any design setting (see mainspan.hydraulics.DesignSettings)
+    [design]       system, catalog (pipe catalog CSV), and any design setting
+                   (see mainspan.hydraulics.DesignSettings)
     [output]       gpkg, overwrite, report, dxf, landxml, links_csv, quantities_csv
     [scenarios.NAME]  any of the sections above, overriding the base for that scenario;
                       ``description`` says what the scenario is.
@@ -54,7 +55,7 @@ SCHEMA = {
 }
 _PATH_KEYS = {("sites", "path"), ("rasters", "terrain"), ("output", "gpkg"), ("output", "report"),
               ("output", "dxf"), ("output", "landxml"), ("output", "links_csv"),
-              ("output", "quantities_csv")}
+              ("output", "quantities_csv"), ("design", "catalog")}
 
 
 def _dataclass_schema(cls):
@@ -79,7 +80,7 @@ def _schema():
     s["costs"] = _dataclass_schema(CostWeights)
     try:
         from .hydraulics import DesignSettings
-        s["design"] = {"system": _STR, **_dataclass_schema(DesignSettings)}
+        s["design"] = {"system": _STR, "catalog": _STR, **_dataclass_schema(DesignSettings)}
     except ImportError:  # design stage not available: only 'system' is known
         s["design"] = {"system": _STR}
     return s
