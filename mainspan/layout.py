@@ -402,7 +402,8 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
 
     say("tree", 0, 1)
     tree, cert, directed = grow_tree(sites, edges, costs, elev, root_idx, layout=layout,
-                                     allow_forest=allow_forest, design=design)
+                                     allow_forest=allow_forest, design=design,
+                                     node_order=getattr(cands, "node_order", None))
     say("tree", 1, 1)
     land_paths = land_cost if isinstance(land_cost, dict) else (
         {"land_cost": land_cost} if land_cost is not None else {})
@@ -450,8 +451,11 @@ def site_elevations(sites, dem_elev=None, *, use_site_z=False):
 
 
 def grow_tree(sites, edges, costs, elev, root_idx, *, layout="tree", allow_forest=False,
-              design=None, certify=True):
+              design=None, certify=True, node_order=None):
     """Grow the tree over the passable candidates.
+
+    ``node_order`` (a locality order of the nodes, as ``Candidates.node_order``)
+    only speeds Prim up; the tree is the same.
 
     ``layout="tree"``: Prim's tree plus its optimality certificate (a
     failing certificate raises :class:`CertificateError`); ``"gravity"``:
@@ -471,7 +475,8 @@ def grow_tree(sites, edges, costs, elev, root_idx, *, layout="tree", allow_fores
         return tree, None, directed
     sub = edges[keep]
     try:
-        tree_k = prim_tree(sites.n, sub, w_all[keep], roots=root_idx, allow_forest=allow_forest)
+        tree_k = prim_tree(sites.n, sub, w_all[keep], roots=root_idx, allow_forest=allow_forest,
+                           node_order=node_order)
     except DisconnectedError as exc:
         raise _disconnected_message(sites, exc, int((~passable).sum())) from None
     if not certify:

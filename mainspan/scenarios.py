@@ -399,13 +399,13 @@ def _node_elevations(bench, sites_key, sites, plan):
     return site_elevations(sites, dem, use_site_z=plan.get("use_site_z", False))
 
 
-def _grow(sites, edges, costs, elev, root_idx, plan, *, certify=True):
+def _grow(sites, edges, costs, elev, root_idx, plan, *, certify=True, node_order=None):
     """Tree over the passable candidates: Prim (+ certificate) or the gravity arborescence."""
     from .layout import grow_tree
 
     return grow_tree(sites, edges, costs, elev, root_idx, layout=plan.get("layout", "tree"),
                      allow_forest=plan.get("allow_forest", False), design=plan.get("design"),
-                     certify=certify)
+                     certify=certify, node_order=node_order)
 
 
 def _tree_links(tree):
@@ -426,7 +426,8 @@ def _assemble(bench, sites, cands, costs, elev, plan, *, name, description):
         raise InputError(f"[design] system: must be 'pressure' or 'gravity', got {system!r}")
     roots = plan.get("roots")
     root_idx = sites.index_of(roots) if roots else sites.default_roots()
-    tree, cert, directed = _grow(sites, cands.edges, costs, elev, root_idx, plan)
+    tree, cert, directed = _grow(sites, cands.edges, costs, elev, root_idx, plan,
+                                 node_order=cands.node_order)
     terrain = plan.get("terrain")
     surf = None
     if terrain is not None:
