@@ -519,7 +519,8 @@ def _validate_links(xy, edges):
 
 def price_links(xy, edges, *, working_crs, terrain=None, land_cost=None, cost_expression=None,
                 class_costs=None, weights=CostWeights(), on_nodata="barrier",
-                sample_spacing_m=None, raster_crs=None, extra_terms=(), progress=None):
+                sample_spacing_m=None, raster_crs=None, extra_terms=(), progress=None,
+                node_id=None):
     """Price candidate links over terrain and land-cost rasters.
 
     Parameters
@@ -552,6 +553,8 @@ def price_links(xy, edges, *, working_crs, terrain=None, land_cost=None, cost_ex
         docstring for the protocol).
     progress : callable, optional
         ``progress(done, total)``; ``total`` is m times the number of passes.
+    node_id : sequence of str, optional
+        Site ids, so that messages name the sites a link joins.
 
     Returns
     -------
@@ -679,8 +682,10 @@ def price_links(xy, edges, *, working_crs, terrain=None, land_cost=None, cost_ex
                 if hit.any():
                     if on_nodata == "error":
                         i = int(np.flatnonzero(hit)[0])
+                        ends = (f"sites {node_id[e[i, 0]]}-{node_id[e[i, 1]]}" if node_id
+                                is not None else f"nodes {e[i, 0]}-{e[i, 1]}")
                         raise InputError(
-                            f"link {i} (nodes {e[i, 0]}-{e[i, 1]}) crosses {nod[i]:.1f} m "
+                            f"link {i} ({ends}) crosses {nod[i]:.1f} m "
                             f"without data in {source}; fill the gap, or choose "
                             "on_nodata='barrier' or 'skip' (--on-nodata)")
                     if on_nodata == "barrier":

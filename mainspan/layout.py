@@ -391,7 +391,8 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
                         land_cost=land_cost, cost_expression=cost_expression,
                         class_costs=class_costs, weights=weights, on_nodata=on_nodata,
                         sample_spacing_m=sample_spacing_m, raster_crs=raster_crs,
-                        progress=(lambda d, t: say("costs", d, t)))
+                        progress=(lambda d, t: say("costs", d, t)),
+                        node_id=sites.node_id)
     say("costs", 1, 1)
 
     # Node elevations: DEM, or the sites' own Z when asked (and where given).

@@ -2,8 +2,8 @@
 
 * Kestrel Flats irrigation scheme — one pump station (``PS-1``) by the stream
   and about 150 field outlets (hydrants) on the fields, demand in L/s.
-* Harrow Brook drainage catchment — inlets on the slopes draining to one
-  outlet near the valley's low end.
+* Harrow Brook drainage catchment — 60 inlets on the lower valley sides
+  draining to one outlet near the valley's low end.
 
 Both are in EPSG:32633 (WGS 84 / UTM 33N) inside the demo terrain's extent
 (x 512 000–515 000 m, y 5 120 000–5 122 500 m).  Run from the repository
@@ -44,10 +44,22 @@ def kestrel_outlets(seed=20261201):
 
 
 def harrow_inlets(seed=7031):
+    """Inlets on the lower valley sides, within 330 m of the valley axis."""
     rng = np.random.default_rng(seed)
     n = 60
-    # inlets spread over the north-eastern half of the demo area
-    pts = np.column_stack([rng.uniform(512900, 514850, n), rng.uniform(5120900, 5122400, n)])
+    ax, ay = 512000.0, 5120317.0            # valley axis of make_rasters.py, SW end
+    bx, by = 514797.5, 5122297.5            # its low point near the NE corner
+    ux, uy = bx - ax, by - ay
+    length = np.hypot(ux, uy)
+    ux, uy = ux / length, uy / length
+    pts = []
+    while len(pts) < n:
+        x, y = rng.uniform(512900, 514850), rng.uniform(5120700, 5122450)
+        s = (x - ax) * ux + (y - ay) * uy
+        d = -(x - ax) * uy + (y - ay) * ux
+        if 0.35 * length < s < length - 60 and 40 < abs(d) < 330:
+            pts.append((x, y))
+    pts = np.asarray(pts)
     q = np.round(rng.uniform(1.0, 5.0, n), 2)
     ids = [f"IN{i + 1:02d}" for i in range(n)]
     pts = np.vstack([[[514800.0, 5122300.0]], pts])

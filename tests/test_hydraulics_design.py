@@ -211,7 +211,7 @@ def test_gravity_follows_steep_falling_ground_and_flags_rising_ground():
     # outlet 8 m above the far end: everything too deep, named in the failures
     r2 = gravity([18.0, 10.0, 10.0, 10.0, 10.0], settings=DesignSettings(gravity_max_depth_m=6.0))
     assert "too_deep" in r2.link_fields["checks"][0]
-    assert any(f.startswith("link 0 (S–A): too_deep") for f in r2.failures)
+    assert any(f.startswith("link 1 (S–A): too_deep") for f in r2.failures)
     assert any(f.startswith("node 'S': too_deep") for f in r2.failures)
 
 

@@ -564,9 +564,10 @@ def design_network(
         plink = np.repeat(np.arange(L), np.diff(off))
         st_up = plan[plink] - st  # stations from the upstream (to_node) end
         q = q_lps / 1000.0
-        sub, inv_up, inv_down, slope, no_pipe = walk_inverts(
-            net, elev, off, st_up, gr, q, d_m, n_man, smin, cover_m=s.gravity_cover_m, drop_m=s.junction_drop_m
-        )
+        sub, inv_up, inv_down, slope, no_pipe, inv_s = walk_inverts(
+            net, elev, off, st_up, gr, q, d_m, n_man, smin, cover_m=s.gravity_cover_m,
+            drop_m=s.junction_drop_m, access_spacing_m=s.access_spacing_m,
+            return_station_inverts=True)
         pipe = keep[sub]
         d = d_m[sub]
         nn = n_man[sub]
@@ -576,8 +577,7 @@ def design_network(
         with np.errstate(invalid="ignore", divide="ignore"):
             v_act = np.where(q > 0, q / np.where(area > 0, area, np.inf), 0.0)
         v_act = np.where(np.isnan(yd), q / (np.pi * d * d / 4.0), v_act)
-        inv_s = inv_up[plink] - slope[plink] * st_up
-        depth_s = gr - inv_s
+        depth_s = gr - inv_s      # the grade may break at access points: use station inverts
         depth_max = np.maximum.reduceat(depth_s, off[:-1]) if L else np.zeros(0)
         cover_min = np.minimum.reduceat(depth_s - d[plink], off[:-1]) if L else np.zeros(0)
         node_inv = np.full(n, np.inf)
@@ -605,7 +605,7 @@ def design_network(
             "x": p0[:, 0] + (p1[:, 0] - p0[:, 0]) * ap_frac,
             "y": p0[:, 1] + (p1[:, 1] - p0[:, 1]) * ap_frac,
             "ground_m": ap_ground,
-            "invert_m": inv_down[ap_link] + slope[ap_link] * ap_ch,
+            "invert_m": _profile_at(off, st, inv_s, plan, ap_link, ap_ch),
         }
         links.update(
             flow_direction=np.full(L, FLOW_TO_FROM, dtype=object),
@@ -666,7 +666,9 @@ def design_network(
     failures = []
     for kind, i, check, text in sorted(details, key=lambda t: (t[0] != "link", t[1], t[2])):
         if kind == "link":
-            failures.append(f"link {i} ({ids[net.from_node[i]]}–{ids[net.to_node[i]]}): {check}: {text}")
+            # numbered like link_id: 1-based, in the order the links were given
+            failures.append(f"link {i + 1} ({ids[net.from_node[i]]}–{ids[net.to_node[i]]}): "
+                            f"{check}: {text}")
         else:
             failures.append(f"node '{ids[i]}': {check}: {text}")
     counts = {f"link:{k}": int(v.sum()) for k, v in flags_l.items()}

@@ -185,8 +185,39 @@ def min_slope(nominal_mm, inner_mm, n, *, table_pct=MIN_SLOPE_TABLE_PCT, min_vel
 
 
 @numba.njit(cache=True)
+def _segment_grades(k, iu, d, smin, cover, prof_off, prof_s, prof_g, length, n_seg, inv_s):
+    """Grade each of *n_seg* equal segments of link *k* from upstream invert *iu*.
+
+    Each segment falls at the larger of ``smin`` and the grade that keeps
+    cover over the stations it spans; the grade breaks at the access points
+    between segments.  Writes the invert at every station into *inv_s* and
+    returns (downstream invert, flattest segment grade).
+    """
+    seg = length / n_seg
+    top = iu
+    flattest = np.inf
+    for t in range(n_seg):
+        a = t * seg
+        b = (t + 1) * seg
+        sl = smin
+        for i in range(prof_off[k], prof_off[k + 1]):
+            r = prof_s[i] - a
+            if r > 1e-9 and prof_s[i] <= b + 1e-9:
+                need = (top - (prof_g[i] - cover - d)) / r
+                if need > sl:
+                    sl = need
+        for i in range(prof_off[k], prof_off[k + 1]):
+            if prof_s[i] >= a - 1e-9 and (prof_s[i] <= b + 1e-9 or t == n_seg - 1):
+                inv_s[i] = top - sl * (prof_s[i] - a)
+        if sl < flattest:
+            flattest = sl
+        top = top - sl * seg
+    return top, flattest
+
+
+@numba.njit(cache=True)
 def _walk(nodes_up_first, parent, parent_link, ground, prof_off, prof_s, prof_g, q,
-          cat_d, cat_n, cat_smin, cover, drop):  # pragma: no cover - compiled
+          cat_d, cat_n, cat_smin, cover, drop, spacing):  # pragma: no cover - compiled
     n_nodes = parent.shape[0]
     n_links = prof_off.shape[0] - 1
     n_pipes = cat_d.shape[0]
@@ -197,13 +228,23 @@ def _walk(nodes_up_first, parent, parent_link, ground, prof_off, prof_s, prof_g,
     inv_down = np.full(n_links, np.nan)
     slope = np.full(n_links, np.nan)
     no_pipe = np.zeros(n_links, np.bool_)
+    inv_s = np.full(prof_s.shape[0], np.nan)
+    work = np.full(prof_s.shape[0], np.nan)
     for v in nodes_up_first:
         k = parent_link[v]
         if k < 0:
             continue
+        length = 0.0
+        for i in range(prof_off[k], prof_off[k + 1]):
+            if prof_s[i] > length:
+                length = prof_s[i]
+        n_seg = 1
+        if spacing > 0 and length > spacing:
+            n_seg = int(np.ceil(length / spacing - 1e-12))
         chosen = -1
         iu = 0.0
         s_best = 0.0
+        down = 0.0
         cap = 0.0
         for j in range(n_pipes):
             d = cat_d[j]
@@ -211,35 +252,31 @@ def _walk(nodes_up_first, parent, parent_link, ground, prof_off, prof_s, prof_g,
             for i in range(prof_off[k], prof_off[k + 1]):
                 if prof_s[i] <= 1e-9:
                     iu = min(iu, prof_g[i] - cover - d)
-            s = cat_smin[j]
-            for i in range(prof_off[k], prof_off[k + 1]):
-                if prof_s[i] > 1e-9:
-                    need = (iu - (prof_g[i] - cover - d)) / prof_s[i]
-                    if need > s:
-                        s = need
+            down, s = _segment_grades(k, iu, d, cat_smin[j], cover, prof_off, prof_s, prof_g,
+                                      length, n_seg, work)
+            # the flattest segment limits what the pipe can carry
             cap = (d / 4.0) ** (2.0 / 3.0) * np.sqrt(s) / cat_n[j] * np.pi * d * d / 4.0
             chosen = j
             s_best = s
+            for i in range(prof_off[k], prof_off[k + 1]):
+                inv_s[i] = work[i]
             if cap >= q[k]:
                 break
         if cap < q[k]:
             no_pipe[k] = True
-        length = 0.0
-        for i in range(prof_off[k], prof_off[k + 1]):
-            if prof_s[i] > length:
-                length = prof_s[i]
         pipe[k] = chosen
         inv_up[k] = iu
         slope[k] = s_best
-        inv_down[k] = iu - s_best * length
+        inv_down[k] = down
         p = parent[v]
         in_drop[p] = min(in_drop[p], inv_down[k] - drop)
         in_crown[p] = min(in_crown[p], inv_down[k] + cat_d[chosen])
-    return pipe, inv_up, inv_down, slope, no_pipe
+    return pipe, inv_up, inv_down, slope, no_pipe, inv_s
 
 
 def walk_inverts(net, ground_m, profile_offsets, station_up_m, profile_ground_m, flow_m3ps,
-                 inner_m, manning_n, slope_min, *, cover_m, drop_m):
+                 inner_m, manning_n, slope_min, *, cover_m, drop_m, access_spacing_m=None,
+                 return_station_inverts=False):
     """Size gravity links and set their inverts, upstream ends first.
 
     Parameters
@@ -263,14 +300,29 @@ def walk_inverts(net, ground_m, profile_offsets, station_up_m, profile_ground_m,
     drop_m : float
         Invert drop across a junction.
 
+    access_spacing_m : float, optional
+        Links longer than this get equally spaced access points (manholes)
+        and the grade may break at each of them, every segment falling at
+        the larger of the minimum grade and the grade that keeps cover over
+        its own stretch of ground (manholes at every change of grade:
+        Recommended Standards for Wastewater Facilities).  ``None``: one
+        straight grade from end to end.
+    return_station_inverts : bool, default False
+        Also return the pipe invert at every profile station.
+
     Returns
     -------
     pipe, invert_up_m, invert_down_m, slope, no_pipe : ndarray, shape (L,)
-        ``pipe`` indexes the candidate arrays; ``slope`` is a fraction.
+        ``pipe`` indexes the candidate arrays; ``slope`` is a fraction: the
+        flattest segment's grade, which limits the capacity.
+    station_invert_m : ndarray
+        Only with ``return_station_inverts``: invert at each profile station.
     """
     nodes_up_first = net.order[::-1].copy()
-    return _walk(nodes_up_first, net.parent, net.parent_link, np.asarray(ground_m, np.float64),
+    out = _walk(nodes_up_first, net.parent, net.parent_link, np.asarray(ground_m, np.float64),
                  np.asarray(profile_offsets, np.int64), np.asarray(station_up_m, np.float64),
                  np.asarray(profile_ground_m, np.float64), np.asarray(flow_m3ps, np.float64),
                  np.asarray(inner_m, np.float64), np.asarray(manning_n, np.float64),
-                 np.asarray(slope_min, np.float64), float(cover_m), float(drop_m))
+                 np.asarray(slope_min, np.float64), float(cover_m), float(drop_m),
+                 0.0 if access_spacing_m is None else float(access_spacing_m))
+    return out if return_station_inverts else out[:5]
