@@ -63,7 +63,7 @@ def test_nodata_policies(scene, capsys):
     code, out, err = run_cli(base + ["--on-nodata", "skip"], capsys)
     assert code == 0, err
     code, out, err = run_cli(base + ["--on-nodata", "error"], capsys)
-    assert code == 2 and "link" in err and "hole.tif" in err
+    assert code == 2 and "link" in err and "hole.tif" in err and "sites " in err
 
 
 def test_sites_outside_terrain_listed_by_id(scene, capsys):
