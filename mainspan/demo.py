@@ -24,10 +24,26 @@ DEMO_FILES = ("kestrel_outlets.gpkg", "harrow_inlets.gpkg", "terrain.tif", "land
               "kestrel.toml", "harrow.toml")
 
 
+def _sample_data():
+    """The demo folder: the installed ``mainspan.sample_data`` package, or, when mainspan is
+    imported from a source checkout (where that package is the top-level ``sample_data/``
+    folder mapped in by the build), that folder itself."""
+    try:
+        return resources.files("mainspan.sample_data")
+    except ModuleNotFoundError:
+        here = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+        folder = os.path.join(here, "sample_data")
+        if not os.path.isdir(folder):
+            raise DataFileError("the demo data (mainspan.sample_data) is not installed; "
+                                "reinstall mainspan") from None
+        from pathlib import Path
+        return Path(folder)
+
+
 def demo_files(dest):
     """Copy the demo inputs into *dest*; return their paths by name."""
     os.makedirs(dest, exist_ok=True)
-    src = resources.files("mainspan.sample_data")
+    src = _sample_data()
     out = {}
     for name in DEMO_FILES:
         item = src / name
