@@ -231,10 +231,19 @@ def long_section(layout, *, path=None, to_node=None, longest=True, figsize=(11.0
         inv = inv_all[li]
         dia = (np.asarray(lk["diameter_mm"], float)[li] / 1000.0 if "diameter_mm" in lk
                else np.zeros(len(li)))
+        ap = layout.tables.get("access_points") or {}
+        ap_id = np.asarray(ap.get("link_id", []), np.int64)
+        lid = np.asarray(lk["link_id"], np.int64)[li] if "link_id" in lk else np.zeros(0)
         for j in range(len(li)):
-            ax.plot(seg_x[j], inv[j], color="#1f4e9a", lw=1.6,
-                    label="invert" if j == 0 else None)
-            ax.plot(seg_x[j], inv[j] + dia[j], color="#1f4e9a", lw=0.8, ls="--",
+            # the grade may break at access points on long links: draw through them
+            hit = np.flatnonzero(ap_id == lid[j]) if ap_id.size else np.zeros(0, np.int64)
+            order = np.argsort(np.asarray(ap["chainage_m"], float)[hit]) if hit.size else hit
+            xs = np.r_[seg_x[j][0], seg_x[j][0] + np.asarray(ap.get("chainage_m", []),
+                                                               float)[hit][order], seg_x[j][1]]
+            zs = np.r_[inv[j][0], np.asarray(ap.get("invert_m", []), float)[hit][order],
+                       inv[j][1]]
+            ax.plot(xs, zs, color="#1f4e9a", lw=1.6, label="invert" if j == 0 else None)
+            ax.plot(xs, zs + dia[j], color="#1f4e9a", lw=0.8, ls="--",
                     label="crown" if j == 0 else None)
         ys += [inv.ravel(), (inv + dia[:, None]).ravel()]
     if "hgl_from_m" in lk:
