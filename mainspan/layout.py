@@ -221,7 +221,21 @@ def file_sha256(path) -> str:
 
 
 def read_layout(path, *, suffix="") -> Layout:
-    """Read a layout written by :meth:`Layout.write_gpkg` back from a GeoPackage."""
+    """Read a layout written by :meth:`Layout.write_gpkg` back from a GeoPackage.
+
+    Parameters
+    ----------
+    path : str
+        The GeoPackage.
+    suffix : str, default ""
+        Layer-name suffix, as written by scenario runs (``links_<scenario>``).
+
+    Returns
+    -------
+    Layout
+        Without the pipeline internals (candidates, costs, tree), which the
+        file does not hold.
+    """
     import shapely
 
     from .writers.gpkg import list_layers, read_table
@@ -321,7 +335,11 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
     candidates : str, default "delaunay"
         Candidate builder name or a union such as ``"delaunay+knn"``.
     k : int, default 8
+        Neighbours per site for ``knn``.
     max_link_m : float, optional
+        Longest candidate link; also filters any builder.
+    max_complete_nodes : int, default 5000
+        Size limit of the ``complete`` builder.
     roots : sequence of site ids, optional
         Roots of the network; default: sites with role source/outlet, else the first site.
     allow_forest : bool, default False
@@ -336,6 +354,8 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
         with direction-dependent costs (Chu–Liu/Edmonds) instead of Prim's tree.
     progress : callable, optional
         ``progress(stage, done, total)``.
+    extra_run_info : dict, optional
+        Further ``key: value`` pairs for the ``run_info`` table.
 
     Returns
     -------

@@ -175,6 +175,15 @@ def _resolve_paths(d, root):
 def load_project(path) -> Project:
     """Read and validate a project TOML file.
 
+    Parameters
+    ----------
+    path : str or path-like
+        The TOML file; paths inside it are relative to its folder.
+
+    Returns
+    -------
+    Project
+
     Examples
     --------
     >>> import tempfile, os

@@ -326,7 +326,35 @@ def _id_text(v):
 
 def sites_from_arrays(xy, *, crs, node_id=None, role=None, demand_lps=None, elevation_m=None,
                       merge_within_m=None):
-    """Build validated :class:`Sites` from arrays already in a projected metric CRS."""
+    """Build validated :class:`Sites` from arrays.
+
+    Parameters
+    ----------
+    xy : array_like, shape (n, 2)
+        Coordinates in *crs*.
+    crs : CRS-like
+        Their CRS; the working CRS is chosen from it as for files.
+    node_id : sequence, optional
+        Site ids (default 1..n as text).
+    role : sequence of str, optional
+        Roles (default all ``demand``).
+    demand_lps : array_like, optional
+        Demands in L/s (default 0).
+    elevation_m : array_like, optional
+        Site elevations (default NaN: none given).
+    merge_within_m : float, optional
+        Merge sites closer than this instead of failing.
+
+    Returns
+    -------
+    Sites
+
+    Examples
+    --------
+    >>> s = sites_from_arrays([[0, 0], [30, 40]], crs="EPSG:32633", demand_lps=[0, 1.5])
+    >>> s.n, s.demand.tolist()
+    (2, [0.0, 1.5])
+    """
     xy = np.asarray(xy, dtype=np.float64)
     if xy.ndim != 2 or xy.shape[1] != 2:
         raise InputError(f"xy must have shape (n, 2), got {xy.shape}")
