@@ -424,7 +424,8 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
     say("tree", 0, 1)
     tree, cert, directed = grow_tree(sites, edges, costs, elev, root_idx, layout=layout,
                                      allow_forest=allow_forest, design=design,
-                                     node_order=getattr(cands, "node_order", None))
+                                     node_order=getattr(cands, "node_order", None),
+                                     terrain_surface=surf, sample_spacing_m=sample_spacing_m)
     say("tree", 1, 1)
     land_paths = land_cost if isinstance(land_cost, dict) else (
         {"land_cost": land_cost} if land_cost is not None else {})
@@ -472,7 +473,8 @@ def site_elevations(sites, dem_elev=None, *, use_site_z=False):
 
 
 def grow_tree(sites, edges, costs, elev, root_idx, *, layout="tree", allow_forest=False,
-              design=None, certify=True, node_order=None):
+              design=None, certify=True, node_order=None, terrain_surface=None,
+              sample_spacing_m=None):
     """Grow the tree over the passable candidates.
 
     ``node_order`` (a locality order of the nodes, as ``Candidates.node_order``)
@@ -492,7 +494,8 @@ def grow_tree(sites, edges, costs, elev, root_idx, *, layout="tree", allow_fores
     keep = np.flatnonzero(passable)
     w_all = np.asarray(costs.total, float)
     if layout == "gravity":
-        tree, directed = _gravity_tree(sites, edges, keep, w_all, costs, elev, root_idx, design)
+        tree, directed = _gravity_tree(sites, edges, keep, w_all, costs, elev, root_idx, design,
+                                       terrain_surface, sample_spacing_m)
         return tree, None, directed
     sub = edges[keep]
     try:
@@ -746,14 +749,16 @@ def _design_settings(design, system):
                          "for the valid keys") from None
 
 
-def _gravity_tree(sites, edges, keep, w_all, costs, elev, root_idx, design):
+def _gravity_tree(sites, edges, keep, w_all, costs, elev, root_idx, design,
+                  terrain_surface=None, sample_spacing_m=None):
     """Minimum arborescence towards the outlet on direction-dependent costs.
 
     Returns a :class:`~mainspan.spanning.Tree` over candidate indices and a
     dict with per-node directed link costs and the comparison with Prim's
     tree priced the same way.
     """
-    from .arborescence import directional_link_costs, min_arborescence
+    from .arborescence import (directional_link_costs, min_arborescence,
+                               profile_directional_costs)
     from .network import rooted_network
     from .spanning import Tree, prim_tree
 
@@ -771,8 +776,20 @@ def _gravity_tree(sites, edges, keep, w_all, costs, elev, root_idx, design):
     ds = _design_settings(design, "gravity")
     slope = min(p for _, p in ds.gravity_min_slope_table_pct) / 100.0
     trench_width = 0.2 + 2 * ds.trench_side_clearance_m
-    arcs = directional_link_costs(e, w, length, elev, min_slope=slope,
-                                  extra_depth_cost_per_m2=ds.trench_cost_per_m3 * trench_width)
+    price = ds.trench_cost_per_m3 * trench_width
+    if terrain_surface is not None:
+        # price dips and rises between the sites from the ground profile of every candidate
+        off, st, gz = terrain_surface.profiles(sites.xy[e[:, 0]], sites.xy[e[:, 1]],
+                                               spacing_m=sample_spacing_m)
+        gz = np.asarray(gz, float).copy()
+        # the ends take the sites' own elevations, as the design stage does
+        gz[np.asarray(off[:-1])] = elev[e[:, 0]]
+        gz[np.asarray(off[1:]) - 1] = elev[e[:, 1]]
+        arcs = profile_directional_costs(e, w, length, off, st, gz, min_slope=slope,
+                                         extra_depth_cost_per_m2=price)
+    else:
+        arcs = directional_link_costs(e, w, length, elev, min_slope=slope,
+                                      extra_depth_cost_per_m2=price)
     arb = min_arborescence(n, arcs.tails, arcs.heads, arcs.weights, root=root)
     child = np.flatnonzero(arb.parent >= 0)
     net = rooted_network(n, arb.parent[child], child, roots=[root])

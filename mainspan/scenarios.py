@@ -399,13 +399,15 @@ def _node_elevations(bench, sites_key, sites, plan):
     return site_elevations(sites, dem, use_site_z=plan.get("use_site_z", False))
 
 
-def _grow(sites, edges, costs, elev, root_idx, plan, *, certify=True, node_order=None):
+def _grow(sites, edges, costs, elev, root_idx, plan, *, certify=True, node_order=None,
+          terrain_surface=None):
     """Tree over the passable candidates: Prim (+ certificate) or the gravity arborescence."""
     from .layout import grow_tree
 
     return grow_tree(sites, edges, costs, elev, root_idx, layout=plan.get("layout", "tree"),
                      allow_forest=plan.get("allow_forest", False), design=plan.get("design"),
-                     certify=certify, node_order=node_order)
+                     certify=certify, node_order=node_order, terrain_surface=terrain_surface,
+                     sample_spacing_m=plan.get("sample_spacing_m"))
 
 
 def _tree_links(tree):
@@ -426,13 +428,13 @@ def _assemble(bench, sites, cands, costs, elev, plan, *, name, description):
         raise InputError(f"[design] system: must be 'pressure' or 'gravity', got {system!r}")
     roots = plan.get("roots")
     root_idx = sites.index_of(roots) if roots else sites.default_roots()
-    tree, cert, directed = _grow(sites, cands.edges, costs, elev, root_idx, plan,
-                                 node_order=cands.node_order)
     terrain = plan.get("terrain")
     surf = None
     if terrain is not None:
         surf = bench.surface(terrain, crs=sites.crs, raster_crs=plan.get("raster_crs"),
                              name="terrain")
+    tree, cert, directed = _grow(sites, cands.edges, costs, elev, root_idx, plan,
+                                 node_order=cands.node_order, terrain_surface=surf)
     land = plan.get("land_cost")
     land = land if isinstance(land, dict) else ({} if land is None else {"land_cost": land})
     params = {
@@ -452,13 +454,15 @@ def _assemble(bench, sites, cands, costs, elev, plan, *, name, description):
     return lay, root_idx
 
 
-def _stability(sites, edges, terrain, land, weights, elev, root_idx, plan, *, runs, pct, rng):
+def _stability(sites, edges, terrain, land, weights, elev, root_idx, plan, *, runs, pct, rng,
+               terrain_surface=None):
     """Share of *runs* perturbed trees holding each candidate link."""
     count = np.zeros(len(edges), dtype=np.int64)
     for _ in range(runs):
         f = rng.uniform(1.0 - pct / 100.0, 1.0 + pct / 100.0, len(edges))
         costs = combine_costs(terrain, land, weights, land_factor=f)
-        tree, _, _ = _grow(sites, edges, costs, elev, root_idx, plan, certify=False)
+        tree, _, _ = _grow(sites, edges, costs, elev, root_idx, plan, certify=False,
+                           terrain_surface=terrain_surface)
         count[_tree_links(tree)[2]] += 1
     return count / float(runs)
 
@@ -553,7 +557,10 @@ def _run_one(project, name, bench, say, stability_runs, perturb_pct, seed):
         rng = np.random.default_rng([int(seed), zlib.crc32(name.encode())])
         res.stability = _stability(sites, cands.edges, terr, land, weights, elev, root_idx,
                                    plan, runs=int(stability_runs), pct=float(perturb_pct),
-                                   rng=rng)
+                                   rng=rng, terrain_surface=None if plan.get("terrain") is None
+                                   else bench.surface(plan["terrain"], crs=sites.crs,
+                                                      raster_crs=plan.get("raster_crs"),
+                                                      name="terrain"))
         res.runs = int(stability_runs)
         lay.links["stability"] = res.stability[lay.links["candidate_index"]]
     return res

@@ -161,3 +161,44 @@ def test_directional_costs_make_the_tree_drain_downhill():
     res = min_arborescence(3, d.tails, d.heads, d.weights, root=0)
     assert res.parent.tolist() == [-1, 0, 1]  # 2 drains to 1, 1 drains to 0
     assert d.link[res.parent_edge[1:]].tolist() == [0, 1]
+
+
+def test_profile_costs_equal_end_point_costs_on_straight_ground():
+    # on a straight ground line the profile model reduces to the closed form of
+    # directional_link_costs (calc: mean depth below cover = extra_end / 2)
+    from mainspan.arborescence import directional_link_costs, profile_directional_costs
+    rng = np.random.default_rng(4)
+    n, m = 30, 60
+    z = rng.uniform(100, 120, n)
+    e = np.sort(rng.choice(n, (m, 2), replace=True), axis=1)
+    e = e[e[:, 0] != e[:, 1]]
+    m = len(e)
+    L = rng.uniform(20, 200, m)
+    base = rng.uniform(100, 1000, m)
+    k = 11
+    st = (np.linspace(0, 1, k)[None, :] * L[:, None]).ravel()
+    g = (z[e[:, 0]][:, None] + (z[e[:, 1]] - z[e[:, 0]])[:, None] * np.linspace(0, 1, k)).ravel()
+    off = np.arange(0, m * k + 1, k)
+    a = directional_link_costs(e, base, L, z, min_slope=0.004, extra_depth_cost_per_m2=20.0)
+    b = profile_directional_costs(e, base, L, off, st, g, min_slope=0.004,
+                                  extra_depth_cost_per_m2=20.0)
+    np.testing.assert_allclose(b.weights, a.weights, rtol=1e-9)
+    assert np.array_equal(a.tails, b.tails) and np.array_equal(a.heads, b.heads)
+
+
+def test_profile_costs_price_a_dip_like_brute_force():
+    # a stream dip between two sites at equal level: the straight pipe must steepen to keep
+    # cover at the dip; brute force over the stations gives the same extra depth
+    from mainspan.arborescence import profile_directional_costs
+    L = 100.0
+    s = np.linspace(0, L, 101)
+    g = 50.0 - 2.0 * np.exp(-((s - 30.0) / 5.0) ** 2)
+    d = profile_directional_costs([[0, 1]], [0.0], [L], [0, s.size], s, g, min_slope=0.004,
+                                  extra_depth_cost_per_m2=1.0)
+    for w, (ss, gg) in zip(d.weights, ((L - s[::-1], g[::-1]), (s, g))):
+        sl = max(0.004, max((gg[0] - gi) / si for si, gi in zip(ss[1:], gg[1:])))
+        depth = gg - gg[0] + sl * ss
+        brute = L * max(0.0, np.trapezoid(depth, ss) / L)
+        assert w == pytest.approx(brute, rel=1e-9)
+    # the dip forces extra depth in both directions
+    assert np.all(d.weights > 0)
