@@ -75,6 +75,10 @@ def test_same_input_same_bytes(tmp_path, sites_gpkg, capsys):
     for p in (a, b):
         assert run_cli(["plan", "--sites", sites_gpkg, "--out", p, "--quiet"], capsys)[0] == 0
     assert open(a, "rb").read() == open(b, "rb").read()
+    # re-planning over the same file gives the same bytes again
+    assert run_cli(["plan", "--sites", sites_gpkg, "--out", a, "--quiet", "--overwrite"],
+                   capsys)[0] == 0
+    assert open(a, "rb").read() == open(b, "rb").read()
 
 
 def _bad_cases(tmp_path, sites_gpkg):

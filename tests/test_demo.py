@@ -115,3 +115,21 @@ def test_user_catalog_csv(demo, tmp_path, capsys):
     code, o, err = run_cli(["plan", demo / "inputs" / "kestrel.toml", "--out", tmp_path / "b.gpkg",
                             "--catalog", bad, "--quiet"], capsys)
     assert code == 2 and "bad.csv" in err
+
+
+def test_exports_do_not_depend_on_the_hash_seed(demo, tmp_path):
+    # sets iterate in a per-process order; outputs must not (checked in fresh interpreters)
+    import subprocess
+    import sys
+    outs = []
+    for seed in ("1", "7", "12345"):
+        out = {}
+        for ext in ("dxf", "xml"):
+            p = tmp_path / f"s{seed}.{ext}"
+            env = dict(os.environ, PYTHONHASHSEED=seed)
+            subprocess.run([sys.executable, "-m", "mainspan", "export",
+                            str(demo / "kestrel_layout.gpkg"), "--to", str(p)], check=True,
+                           env=env, capture_output=True)
+            out[ext] = p.read_bytes()
+        outs.append(out)
+    assert outs[0] == outs[1] == outs[2]

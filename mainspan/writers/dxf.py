@@ -343,6 +343,10 @@ def write_dxf(layout, path, *, by="role", polylines="3d", text_height_m=None, or
         doc.header["$EXTMAX"] = (float(hi[0]), float(hi[1]), 0.0)
         doc.set_modelspace_vport(height=float((hi - lo).max()), center=tuple((lo + hi) / 2))
 
+    # ezdxf adds CLASS entries for the entity types in use from a set, whose order follows
+    # Python's per-process hash seed: add them now, sorted, so every run writes the same bytes.
+    doc.classes.add_required_classes(doc.dxfversion)
+    doc.classes.classes = type(doc.classes.classes)(sorted(doc.classes.classes.items()))
     ezdxf.options.write_fixed_meta_data_for_testing = True
     try:
         buf = io.StringIO()

@@ -68,10 +68,13 @@ def write_layers(path, layers: dict, *, overwrite=False):
     fd, tmp = tempfile.mkstemp(prefix=".mainspan-", suffix=".gpkg", dir=folder)
     os.close(fd)
     try:
-        if existing:
+        # Carry the file over only when it holds layers we do not write; otherwise start
+        # afresh, so that re-running with --overwrite gives the same bytes as the first run.
+        if any(n not in layers for n in existing):
             shutil.copyfile(path, tmp)
         else:
             os.remove(tmp)
+            existing = []
         pyogrio.set_gdal_config_options({"OGR_CURRENT_DATE": FIXED_DATE})
         for name, df in layers.items():
             opts = {"OVERWRITE": "YES"} if name in existing else None
