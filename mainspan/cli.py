@@ -12,7 +12,8 @@ import os
 import sys
 
 from ._version import __version__
-from .errors import DataFileError, InputError, MainspanError, OverwriteError
+from .errors import DataFileError, InputError, MainspanError
+from .project import check_design_keys
 
 __all__ = ["main"]
 
@@ -195,24 +196,12 @@ def _settings_from(a):
     return flags, None
 
 
-def _validate_design_keys(settings):
-    from .project import _schema
-    schema = _schema()
-    d = settings.get("design", {})
-    for k in d:
-        if k not in schema["design"]:
-            import difflib
-            close = difflib.get_close_matches(k, list(schema["design"]), n=1)
-            raise InputError(f"option --design: unknown setting {k!r}"
-                             + (f"; did you mean {close[0]!r}?" if close else ""))
-
-
 def _run_plan(settings, *, quiet=False):
     from .layout import plan_layout
     from .project import plan_kwargs
     from .sites import read_sites
 
-    _validate_design_keys(settings)
+    check_design_keys(settings, where="option --design")
     path, read_kw, plan_kw, out = plan_kwargs(settings)
     sites = read_sites(path, **read_kw)
     return plan_layout(sites, progress=_progress(quiet), **plan_kw), out
@@ -226,7 +215,8 @@ def cmd_plan(a):
         raise InputError("no output given: pass --out LAYOUT.gpkg (or [output] gpkg in the "
                          "project file)")
     overwrite = bool(a.overwrite or out.get("overwrite", False))
-    _refuse_existing_layers(gpkg, overwrite)
+    from .writers.gpkg import check_layers_free
+    check_layers_free(gpkg, ("links", "nodes", "run_info"), overwrite=overwrite)
     lay, _ = _run_plan(settings, quiet=a.quiet)
     lay.write_gpkg(gpkg, overwrite=overwrite)
     print(lay.summary())
@@ -241,16 +231,6 @@ def cmd_plan(a):
     if lay.system:
         print(CAUTION)
     return 0
-
-
-def _refuse_existing_layers(gpkg, overwrite):
-    from .writers.gpkg import list_layers
-    if overwrite or not os.path.exists(gpkg):
-        return
-    clash = [n for n in list_layers(gpkg) if n in ("links", "nodes", "run_info")]
-    if clash:
-        raise OverwriteError(f"{gpkg!r} already has layer(s) {', '.join(clash)}; pass "
-                             "--overwrite to replace them, or write elsewhere")
 
 
 def _fmt(v):
@@ -313,7 +293,7 @@ def cmd_check(a):
     from .check import check_inputs
 
     settings, _ = _settings_from(a)
-    _validate_design_keys(settings)
+    check_design_keys(settings, where="option --design")
     report = check_inputs(settings)
     print(report.text())
     return 0 if report.ok else 2

@@ -295,15 +295,13 @@ def _inputs_info(named_paths):
 
 
 def _path_sums(parent, order, link_of_node, link_cost):
-    """Hops and cost from each node to its root, processing nodes in grow order."""
-    n = len(parent)
-    hops = np.zeros(n, dtype=np.int64)
-    cost = np.zeros(n)
-    # order lists parents before children, so one vectorised pass per depth
-    # level would work; a cumulative walk in grow order is simplest and O(n).
-    from ._kernels import path_sums
+    """Hops and cost from each node to its root (parents come first in *order*)."""
+    from .network import _path_sums as along_paths
 
-    return path_sums(parent, order, link_of_node, link_cost, hops, cost)
+    order = np.asarray(order, np.int64)
+    cost = along_paths(order, parent, link_of_node, np.asarray(link_cost, np.float64))
+    hops = along_paths(order, parent, link_of_node, np.ones(len(link_cost)))
+    return hops.astype(np.int64), cost
 
 
 def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, class_costs=None,

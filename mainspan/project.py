@@ -32,7 +32,7 @@ from dataclasses import dataclass, field
 
 from .errors import DataFileError, InputError
 
-__all__ = ["Project", "load_project", "plan_kwargs", "SCHEMA"]
+__all__ = ["Project", "load_project", "plan_kwargs", "check_design_keys", "SCHEMA"]
 
 _STR, _NUM, _INT, _BOOL, _LIST, _TABLE = "text", "number", "integer", "true/false", "list", "table"
 
@@ -221,6 +221,17 @@ def load_project(path) -> Project:
             v["description"] = body["description"]
         scen[name] = _resolve_paths(v, root)
     return Project(path=path, root=root, base=base, scenarios=scen, stability=stability)
+
+
+def check_design_keys(settings: dict, *, where="[design]"):
+    """Refuse a design setting that DesignSettings does not know, naming the nearest one."""
+    known = _schema()["design"]
+    for k in settings.get("design", {}):
+        if k not in known:
+            close = difflib.get_close_matches(k, list(known), n=1)
+            raise InputError(f"{where}: unknown setting {k!r}"
+                             + (f"; did you mean {close[0]!r}?" if close else
+                                f"; valid settings: {', '.join(known)}"))
 
 
 def plan_kwargs(settings: dict):

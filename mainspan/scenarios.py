@@ -77,6 +77,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .errors import CertificateError, DataFileError, InputError
+from .project import check_design_keys
 
 __all__ = ["ScenarioResult", "ScenarioSet", "run_scenarios", "write_scenarios", "difference",
            "combine_costs", "format_table", "report_sections", "layer_names", "compare_cli",
@@ -538,7 +539,7 @@ def _run_one(project, name, bench, say, stability_runs, perturb_pct, seed):
 
     settings = project.settings_for(name)
     desc = "" if name == "base" else project.scenarios[name].get("description", "")
-    _check_design_keys(settings)
+    check_design_keys(settings)
     path, read_kw, plan, _ = plan_kwargs(settings)
     weights = _weights(plan)
     sk, sites = bench.get_sites(path, read_kw)
@@ -564,15 +565,6 @@ def _run_one(project, name, bench, say, stability_runs, perturb_pct, seed):
         res.runs = int(stability_runs)
         lay.links["stability"] = res.stability[lay.links["candidate_index"]]
     return res
-
-
-def _check_design_keys(settings):
-    from .project import _schema
-
-    known = _schema()["design"]
-    for k in settings.get("design", {}):
-        if k not in known:
-            raise InputError(f"unknown [design] key {k!r}; valid keys: {', '.join(known)}")
 
 
 def same_sites(a, b) -> bool:
@@ -1046,7 +1038,7 @@ def compare_cli(args):
     DataFileError (exit code 2 in the CLI).
     """
     from .project import load_project
-    from .writers.gpkg import list_layers
+    from .writers.gpkg import check_layers_free
 
     proj = load_project(args.project)
     out = proj.base.get("output", {})
@@ -1057,13 +1049,8 @@ def compare_cli(args):
     overwrite = bool(args.overwrite or out.get("overwrite", False))
     gpkg = args.out or (_suffixed(out["gpkg"], "_scenarios") if out.get("gpkg") else None)
     rep = args.report or (_suffixed(out["report"], "_scenarios") if out.get("report") else None)
-    if gpkg and not overwrite and os.path.exists(gpkg):
-        from .errors import OverwriteError
-        clash = [n for n in list_layers(gpkg) if n in layer_names(["base", *proj.scenarios])]
-        if clash:
-            raise OverwriteError(f"{gpkg!r} already has layer(s) {', '.join(clash[:4])}"
-                                 f"{' …' if len(clash) > 4 else ''}; pass --overwrite to "
-                                 "replace them, or write elsewhere")
+    if gpkg:
+        check_layers_free(gpkg, layer_names(["base", *proj.scenarios]), overwrite=overwrite)
     if rep and not overwrite and os.path.exists(rep):
         from .errors import OverwriteError
         raise OverwriteError(f"report {rep!r} exists; pass --overwrite or write elsewhere")

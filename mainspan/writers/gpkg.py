@@ -21,7 +21,7 @@ import numpy as np
 
 from ..errors import DataFileError, OverwriteError
 
-__all__ = ["write_layers", "list_layers", "read_table", "FIXED_DATE"]
+__all__ = ["write_layers", "list_layers", "check_layers_free", "read_table", "FIXED_DATE"]
 
 #: Timestamp written into ``gpkg_contents`` so output bytes are reproducible.
 FIXED_DATE = "2000-01-01T00:00:00.000Z"
@@ -38,6 +38,21 @@ def list_layers(path) -> list[str]:
     except Exception as exc:
         raise DataFileError(f"{path!r} exists but cannot be opened as a GeoPackage: {exc}; "
                             "choose another output path") from None
+
+
+def check_layers_free(path, names, *, overwrite=False):
+    """Refuse (:class:`OverwriteError`) if *path* already holds any of *names*.
+
+    Callers use it before long work so that a clash is reported at once;
+    :func:`write_layers` applies it again when it writes.
+    """
+    if overwrite:
+        return
+    clash = [n for n in list_layers(path) if n in set(names)]
+    if clash:
+        raise OverwriteError(f"{path!r} already has layer(s) {', '.join(clash[:4])}"
+                             f"{' …' if len(clash) > 4 else ''}; pass --overwrite "
+                             "(overwrite=True) to replace them, or write elsewhere")
 
 
 def write_layers(path, layers: dict, *, overwrite=False):
@@ -60,11 +75,8 @@ def write_layers(path, layers: dict, *, overwrite=False):
     folder = os.path.dirname(os.path.abspath(path))
     if not os.path.isdir(folder):
         raise DataFileError(f"output folder {folder!r} does not exist; create it first")
+    check_layers_free(path, layers, overwrite=overwrite)
     existing = list_layers(path)
-    clash = [n for n in layers if n in existing]
-    if clash and not overwrite:
-        raise OverwriteError(f"{path!r} already has layer(s) {', '.join(clash)}; pass "
-                             "--overwrite (overwrite=True) to replace them, or write elsewhere")
     fd, tmp = tempfile.mkstemp(prefix=".mainspan-", suffix=".gpkg", dir=folder)
     os.close(fd)
     try:
