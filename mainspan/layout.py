@@ -563,6 +563,9 @@ def assemble_layout(sites, cands, costs, elev, tree, cert=None, directed=None, *
         "hops_to_root": hops,
         "cost_to_root": cost_to_root,
     }
+    for key in ("area_ha", "runoff_c", "population"):   # gravity design basis fields
+        if getattr(sites, key, None) is not None:
+            nodes[key] = np.asarray(getattr(sites, key), float)
     profiles = None
     if terrain_surface is not None and L:
         off, st, z = terrain_surface.profiles(sites.xy[parent], sites.xy[child],
@@ -693,7 +696,7 @@ def _design(lay, system, design, tree):
         profile_station_m=None if p is None else p.station_m,
         profile_ground_m=None if p is None else p.ground_m,
         land_cost=None if land is None else np.asarray(land, float),
-        settings=design)
+        settings=design, **_basis_fields(lay.nodes))
     ident = ("link_id", "from_node", "to_node", "grow_order", "candidate_index", "node_id",
              "role", "demand_lps", "elevation_m", "parent_node")
     for k_, v in res.link_fields.items():
@@ -719,6 +722,12 @@ def _design(lay, system, design, tree):
         lay.tables["access_points"] = table
     lay.design = res
     lay.design_settings = design
+
+
+def _basis_fields(nodes):
+    """The sites' design-basis columns (catchment area, runoff coefficient, population)."""
+    return {k: np.asarray(nodes[k], float) for k in ("area_ha", "runoff_c", "population")
+            if k in nodes}
 
 
 def _design_settings(design, system):

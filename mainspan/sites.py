@@ -14,6 +14,11 @@ Choices made here (documented for users):
   matched case-insensitively.
 * Without a demand field every demand is 0 L/s.  Demands must be finite and
   non-negative.
+* Design-basis fields (gravity networks, see :mod:`mainspan.hydraulics.basis`):
+  catchment area in hectares (``area_field``, default a field called
+  ``area_ha``), runoff coefficient 0–1 (``runoff_field``, default
+  ``runoff_c``) and persons served (``population_field``, default
+  ``population``).  Each is read only when present; an empty value is 0.
 * Two sites closer than :data:`COINCIDENT_M` (1 mm) are *coincident*: an
   error lists the pairs unless ``merge_within_m`` is given, which merges
   every cluster of sites within that distance into its first site (lowest
@@ -57,6 +62,9 @@ class Sites:
     demand : ndarray of float64, L/s
     elevation : ndarray of float64, NaN where the input carried no Z
     crs : pyproj.CRS, the working CRS
+    area_ha, runoff_c, population : ndarray of float64 or None
+        Catchment area (ha), runoff coefficient and persons served per site,
+        for the design basis of gravity networks; None when not given.
     """
 
     xy: np.ndarray
@@ -70,6 +78,9 @@ class Sites:
     path: str | None = None
     layer: str | None = None
     merged: list = field(default_factory=list)
+    area_ha: np.ndarray | None = None
+    runoff_c: np.ndarray | None = None
+    population: np.ndarray | None = None
 
     def __len__(self):
         return len(self.node_id)
@@ -190,7 +201,7 @@ def _read_table(path, layer, x_field, y_field):
 
 def read_sites(path, *, layer=None, id_field=None, role_field=None, demand_field=None,
                x_field=None, y_field=None, sites_crs=None, crs=None, merge_within_m=None,
-               elevation_field=None):
+               elevation_field=None, area_field=None, runoff_field=None, population_field=None):
     """Read a point layer of sites and bring it into the working metric CRS.
 
     Parameters
@@ -201,6 +212,9 @@ def read_sites(path, *, layer=None, id_field=None, role_field=None, demand_field
         Layer name for multi-layer sources.
     id_field, role_field, demand_field, elevation_field : str, optional
         Attribute fields; see the module notes for defaults.
+    area_field, runoff_field, population_field : str, optional
+        Catchment area (ha), runoff coefficient (0–1) and population fields
+        of the gravity design basis; see the module notes for defaults.
     x_field, y_field : str, optional
         Coordinate columns of a CSV (default ``x`` and ``y``).
     sites_crs : CRS-like, optional
@@ -293,6 +307,26 @@ def read_sites(path, *, layer=None, id_field=None, role_field=None, demand_field
         z = pd.to_numeric(field_values(elevation_field, "--elevation-field"),
                           errors="coerce").to_numpy(float)
 
+    import pandas as pd
+    basis = {}
+    for key, name, option, hi in (("area_ha", area_field, "area_field", None),
+                                  ("runoff_c", runoff_field, "runoff_field", 1.0),
+                                  ("population", population_field, "population_field", None)):
+        if name is None and key in attrs.columns:
+            name = key
+        if name is None:
+            continue
+        raw = field_values(name, option)
+        vals = pd.to_numeric(raw, errors="coerce").to_numpy(float)
+        vals[raw.isna().to_numpy()] = 0.0
+        bad = np.flatnonzero(~np.isfinite(vals) | (vals < 0) | ((vals > hi) if hi else False))
+        if bad.size:
+            i = int(bad[0])
+            rng = "between 0 and 1" if hi else ">= 0"
+            raise InputError(f"sites {where}: site {ids[i]!r} has {raw.iloc[i]!r} in field {name!r}; "
+                             f"{key} must be a number {rng}")
+        basis[key] = vals
+
     if file_crs is None:
         given = sites_crs if sites_crs is not None else crs
         if given is None:
@@ -314,7 +348,7 @@ def read_sites(path, *, layer=None, id_field=None, role_field=None, demand_field
         z = z * zf
 
     sites = Sites(xy=xy_w, node_id=ids, role=role, demand=demand, elevation=z, crs=wk.crs,
-                  source_crs=file_crs, crs_reason=wk.reason, path=path, layer=layer)
+                  source_crs=file_crs, crs_reason=wk.reason, path=path, layer=layer, **basis)
     return _check_geometry(sites, where, merge_within_m)
 
 
@@ -325,7 +359,7 @@ def _id_text(v):
 
 
 def sites_from_arrays(xy, *, crs, node_id=None, role=None, demand_lps=None, elevation_m=None,
-                      merge_within_m=None):
+                      merge_within_m=None, area_ha=None, runoff_c=None, population=None):
     """Build validated :class:`Sites` from arrays.
 
     Parameters
@@ -344,6 +378,9 @@ def sites_from_arrays(xy, *, crs, node_id=None, role=None, demand_lps=None, elev
         Site elevations (default NaN: none given).
     merge_within_m : float, optional
         Merge sites closer than this instead of failing.
+    area_ha, runoff_c, population : array_like, optional
+        Catchment area (ha), runoff coefficient (0–1) and persons served per
+        site (gravity design basis).
 
     Returns
     -------
@@ -380,8 +417,17 @@ def sites_from_arrays(xy, *, crs, node_id=None, role=None, demand_lps=None, elev
     if (~np.isfinite(demand) | (demand < 0)).any():
         raise InputError("demand_lps must be finite and >= 0")
     z = np.full(n, np.nan) if elevation_m is None else np.asarray(elevation_m, float)
+    basis = {}
+    for key, vals, hi in (("area_ha", area_ha, None), ("runoff_c", runoff_c, 1.0),
+                          ("population", population, None)):
+        if vals is not None:
+            a = np.asarray(vals, float)
+            if a.shape != (n,) or (~np.isfinite(a) | (a < 0) | ((a > hi) if hi else False)).any():
+                raise InputError(f"{key} must be one number per site, >= 0"
+                                 + (" and <= 1" if hi else ""))
+            basis[key] = a
     s = Sites(xy=xy, node_id=ids, role=role, demand=demand, elevation=z, crs=wk.crs,
-              source_crs=crs, crs_reason=wk.reason)
+              source_crs=crs, crs_reason=wk.reason, **basis)
     return _check_geometry(s, "sites", merge_within_m)
 
 
@@ -430,6 +476,20 @@ def _merge(sites: Sites, pairs):
     inv = {v: k for k, v in _ROLE_RANK.items()}
     role = np.array([inv[int(best[k])] for k in keep], dtype=object)
     merged = [(str(sites.node_id[rep[i]]), str(sites.node_id[i])) for i in range(n) if rep[i] != i]
+    basis = {}
+    if sites.population is not None:
+        basis["population"] = np.bincount(rep, weights=sites.population, minlength=n)[keep]
+    if sites.area_ha is not None:
+        area = np.bincount(rep, weights=sites.area_ha, minlength=n)
+        basis["area_ha"] = area[keep]
+        if sites.runoff_c is not None:
+            # merged catchments: the area-weighted runoff coefficient keeps sum(C·A)
+            ca = np.bincount(rep, weights=sites.area_ha * sites.runoff_c, minlength=n)[keep]
+            basis["runoff_c"] = np.where(area[keep] > 0, ca / np.where(area[keep] > 0, area[keep], 1),
+                                         sites.runoff_c[keep])
+    elif sites.runoff_c is not None:
+        basis["runoff_c"] = sites.runoff_c[keep]
     return Sites(xy=sites.xy[keep], node_id=sites.node_id[keep], role=role, demand=demand,
                  elevation=sites.elevation[keep], crs=sites.crs, source_crs=sites.source_crs,
-                 crs_reason=sites.crs_reason, path=sites.path, layer=sites.layer, merged=merged)
+                 crs_reason=sites.crs_reason, path=sites.path, layer=sites.layer, merged=merged,
+                 **basis)
