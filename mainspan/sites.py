@@ -317,7 +317,7 @@ def read_sites(path, *, layer=None, id_field=None, role_field=None, demand_field
         if name is None:
             continue
         raw = field_values(name, option)
-        vals = pd.to_numeric(raw, errors="coerce").to_numpy(float)
+        vals = np.array(pd.to_numeric(raw, errors="coerce"), dtype=float)
         vals[raw.isna().to_numpy()] = 0.0
         bad = np.flatnonzero(~np.isfinite(vals) | (vals < 0) | ((vals > hi) if hi else False))
         if bad.size:

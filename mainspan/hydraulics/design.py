@@ -45,7 +45,7 @@ invert.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field, fields
+from dataclasses import dataclass, field, fields, replace
 
 import numpy as np
 
@@ -54,6 +54,7 @@ from ..network import FLOW_FROM_TO, accumulate, design_flow_lps, rooted_network
 from .catalog import PipeCatalog, default_catalog
 from .friction import water_kinematic_viscosity_m2ps
 from .gravity import MIN_SLOPE_TABLE_PCT
+from .basis import check_basis_settings, sanitary_flows, storm_flows
 from .gravity_design import design_gravity
 from .pressure import HEADLOSS_METHODS, hydraulic_grade, size_pressure
 
@@ -131,6 +132,27 @@ class DesignSettings:
         Invert drop across a junction (common practice).
     access_spacing_m : float, default=120.0
         Maximum distance between access points (400 ft, same standard).
+
+    Gravity design basis (see :mod:`mainspan.hydraulics.basis`)
+    -----------------------------------------------------------
+    gravity_basis : {"sanitary", "storm"}, default="sanitary"
+        Where gravity design flows come from; also sets the self-cleansing
+        velocity and the LandXML ``pipeNetType``.
+    sanitary_peaking : {"fixed", "harmon", "babbitt"}, default="fixed"
+        Peaking of sanitary flows; "fixed" uses ``peaking_factor``.
+    sanitary_per_capita_lpd : float, default=380.0
+        Average sewage flow per person, L/day (≈ 100 US gal per capita per
+        day, Recommended Standards for Wastewater Facilities; from memory).
+    idf : sequence of (duration_min, intensity_mm_per_h) pairs, dict or None, default=None
+        Rainfall intensity–duration table for ``storm`` (a project file's
+        ``[design.idf]`` with lists ``duration_min`` and
+        ``intensity_mm_per_h``); interpolated log-log.
+    storm_inlet_time_min : float, default=10.0
+        Inlet time of every catchment, min (common practice, 5–15 min).
+    storm_min_velocity_mps : float, default=0.9
+        Self-cleansing velocity of storm drains flowing full, replacing
+        ``gravity_min_velocity_mps`` under ``storm`` (3 ft/s; from memory,
+        ASCE/WPCF sewer design manual).
     """
 
     peaking_factor: float = 1.0
@@ -156,8 +178,17 @@ class DesignSettings:
     gravity_max_depth_m: float = 6.0
     junction_drop_m: float = 0.03
     access_spacing_m: float = 120.0
+    # --- gravity design basis (mainspan.hydraulics.basis) ---
+    gravity_basis: str = "sanitary"
+    sanitary_peaking: str = "fixed"
+    sanitary_per_capita_lpd: float = 380.0
+    idf: tuple | dict | None = None
+    storm_inlet_time_min: float = 10.0
+    storm_min_velocity_mps: float = 0.9
+    # --- end of the design basis ---
 
     def __post_init__(self):
+        object.__setattr__(self, "idf", check_basis_settings(self))  # the design basis keys
         rules = {
             "peaking_factor": ("> 0", "use 1.0 for no peaking"),
             "min_flow_lps": (">= 0", "use 0 for no floor"),
@@ -337,6 +368,9 @@ def design_network(
     profile_ground_m=None,
     land_cost=None,
     settings: DesignSettings | None = None,
+    area_ha=None,
+    runoff_c=None,
+    population=None,
 ) -> DesignResult:
     """Orient, size and check a tree of pressure or gravity mains.
 
@@ -366,6 +400,10 @@ def design_network(
     land_cost : array_like, shape (L,), optional
         Land or easement cost per link, carried into the quantities.
     settings : DesignSettings, optional
+    area_ha, runoff_c, population : array_like, shape (n,), optional
+        Catchment area (ha), runoff coefficient and persons served at each
+        node, for the gravity design basis (``storm`` needs the first two;
+        ``sanitary`` adds the population's flow to ``demand_lps``).
 
     Returns
     -------
@@ -424,6 +462,30 @@ def design_network(
     off, st, gr = _oriented_profiles(net, plan, elev, profile_offsets, profile_station_m, profile_ground_m)
     accumulated = accumulate(net, demand)
     q_lps = design_flow_lps(accumulated, peaking_factor=s.peaking_factor, min_flow_lps=s.min_flow_lps)
+    basis = None
+    if system == "gravity":   # --- the design basis (mainspan.hydraulics.basis) ---
+        if s.gravity_basis == "storm":
+            s = replace(s, gravity_min_velocity_mps=s.storm_min_velocity_mps)
+            if s.idf is None:
+                raise InputError("design option 'idf' is missing: gravity_basis 'storm' needs a rainfall "
+                                 "intensity table; give [design.idf] duration_min and intensity_mm_per_h lists")
+
+            def velocity_fn(q):    # full-pipe velocities of the network sized for flows q
+                scratch = ({}, {}, {}, {}, [], {})
+                design_gravity(s, net, xy, elev, plan, off, st, gr, q, *scratch)
+                return scratch[0]["velocity_full_mps"]
+
+            basis = storm_flows(net, area_ha=area_ha, runoff_c=runoff_c, length_m=plan, idf=s.idf,
+                                inlet_time_min=s.storm_inlet_time_min, velocity_fn=velocity_fn,
+                                min_flow_lps=s.min_flow_lps)
+        else:
+            basis = sanitary_flows(net, demand_lps=demand, population=population,
+                                   per_capita_lpd=s.sanitary_per_capita_lpd, peaking=s.sanitary_peaking,
+                                   peaking_factor=s.peaking_factor, min_flow_lps=s.min_flow_lps)
+            accumulated = basis.average_flow_lps
+        q_lps = basis.design_flow_lps
+        notes.extend(basis.notes)
+    # --- end of the design basis ---
     links = {
         "from_node": net.from_node,
         "to_node": net.to_node,
@@ -432,10 +494,23 @@ def design_network(
         "design_flow_lps": q_lps,
     }
     nodes = {"hops_to_root": net.hops_to_root.copy()}
+    if basis is not None:   # design-basis fields and totals
+        if s.gravity_basis == "storm":
+            links.update(ca_ha=basis.ca_ha, tc_min=basis.tc_min, intensity_mm_per_h=basis.intensity_mm_per_h)
+        elif s.sanitary_peaking != "fixed":
+            links["peaking_factor"] = basis.peaking
     flags_l: dict[str, np.ndarray] = {}
     flags_n: dict[str, np.ndarray] = {}
     details: list[tuple[str, int, str, str]] = []  # (kind, index, check, text)
     summary = {"system": system, "n_nodes": n, "n_links": L, "n_roots": int(net.roots.size)}
+    if basis is not None:
+        summary["gravity_basis"] = s.gravity_basis
+        if s.gravity_basis == "storm":
+            summary.update(storm_rounds=basis.iterations, storm_settled=basis.converged,
+                           max_tc_min=float(np.nanmax(basis.tc_min)) if np.isfinite(basis.tc_min).any() else 0.0,
+                           peak_outlet_flow_lps=float(q_lps[np.isin(net.from_node, net.roots)].sum()))
+        else:
+            summary["sanitary_peaking"] = s.sanitary_peaking
     access = {k: np.zeros(0) for k in ("chainage_m", "x", "y", "ground_m", "invert_m")}
     access["link"] = np.zeros(0, np.int64)
 

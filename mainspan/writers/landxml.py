@@ -8,7 +8,8 @@ What is written (namespace ``http://www.landxml.org/schema/LandXML-1.2``):
   and its WKT.
 * ``Application`` naming mainspan and its version.
 * ``PipeNetworks/PipeNetwork`` (``pipeNetType="water"`` for a pressure main,
-  ``"sanitary"`` for a gravity main, ``"other"`` when not sized) with one
+  ``"sanitary"`` for a gravity main, ``"storm"`` for one designed on the
+  storm basis, ``"other"`` when not sized) with one
   ``Struct`` per node (``Center`` as *northing easting*, the standard's
   order; ``elevRim`` = ground, ``elevSump`` = lowest invert; a ``Connection``
   element since the layout does not size structures; one ``Invert`` per
@@ -126,6 +127,8 @@ def write_landxml(layout, path, *, overwrite=False):
     d, t = _date_time(info)
     system = (info.get("system") or "").lower()
     net_type = {"pressure": "water", "gravity": "sanitary"}.get(system, "other")
+    if system == "gravity" and str(info.get("design:gravity_basis", "")).lower() == "storm":
+        net_type = "storm"   # the design basis says what the gravity mains carry
     gravity = system == "gravity"
 
     root = E("LandXML", version="1.2", date=d, time=t)
