@@ -103,6 +103,8 @@ def _tree_options(p):
                    help="tree: Prim's minimum tree (default); gravity: minimum arborescence "
                    "towards the outlet with direction-dependent costs")
     d.add_argument("--catalog", metavar="CSV", help="pipe catalog CSV")
+    d.add_argument("--prices", metavar="FILE",
+                   help="price table (CSV or TOML; `mainspan demo` writes a template)")
     d.add_argument("--design", action="append", metavar="KEY=VALUE",
                    help="any design setting, e.g. velocity_max_mps=1.2 (repeatable)")
 
@@ -163,6 +165,7 @@ def _flags_to_settings(a) -> dict:
     put("tree", "layout", a.layout)
     put("design", "system", a.system)
     put("design", "catalog", a.catalog)
+    put("design", "prices", getattr(a, "prices", None))
     for item in a.design or ():
         k, sep, v = item.partition("=")
         if not sep or not k:
@@ -278,9 +281,11 @@ def _print_design(lay):
 def format_quantities(q) -> str:
     """The bill of quantities as a fixed-width text table."""
     import numpy as np
-    cols = [c for c in ("material", "nominal_mm", "length_m", "count", "pipe_cost",
-                        "trench_cost", "land_cost", "total_cost") if c in q]
-    rows = [[_fmt(v) if not isinstance(v, (int, np.integer)) else str(v) for v in
+    cols = [c for c in ("category", "item", "material", "nominal_mm", "unit", "quantity", "unit_cost",
+                        "length_m", "count", "pipe_cost", "trench_cost", "land_cost", "total_cost")
+            if c in q and not (c in ("material", "nominal_mm", "length_m") and "item" in q)]
+    rows = [["" if isinstance(v, (float, np.floating)) and np.isnan(v) else
+             _fmt(v) if not isinstance(v, (int, np.integer)) else str(v) for v in
              (q[c][i] for c in cols)] for i in range(len(q[cols[0]]))]
     width = [max(len(c), *(len(r[j]) for r in rows)) for j, c in enumerate(cols)]
     lines = ["bill of quantities:",

@@ -76,6 +76,10 @@ def run_demo(outdir, *, overwrite=False, quiet=False, write_extras=True):
                                  "another folder")
     inputs = os.path.join(outdir, "inputs")
     files = demo_files(inputs)
+    from .prices import default_prices, write_prices_csv
+    files["prices.csv"] = os.path.join(inputs, "prices.csv")   # an editable template (--prices FILE)
+    if overwrite or not os.path.exists(files["prices.csv"]):
+        write_prices_csv(default_prices(), files["prices.csv"], overwrite=True)
     say = _progress(quiet)
 
     def plan(project, scenario=None):

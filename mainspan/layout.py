@@ -749,6 +749,12 @@ def _design_settings(design, system):
             d[key] = read_catalog(d[key])
     if cat is not None:
         d["gravity_catalog" if system == "gravity" else "pressure_catalog"] = read_catalog(cat)
+    if isinstance(d.get("prices"), (str, os.PathLike)):
+        from .prices import read_prices
+        d["prices"] = read_prices(d["prices"])
+    elif isinstance(d.get("prices"), dict):
+        from .prices import prices_from_mapping
+        d["prices"] = prices_from_mapping(d["prices"])
     try:
         return DesignSettings(**d)
     except TypeError as exc:
@@ -783,7 +789,7 @@ def _gravity_tree(sites, edges, keep, w_all, costs, elev, root_idx, design,
     ds = _design_settings(design, "gravity")
     slope = min(p for _, p in ds.gravity_min_slope_table_pct) / 100.0
     trench_width = 0.2 + 2 * ds.trench_side_clearance_m
-    price = ds.trench_cost_per_m3 * trench_width
+    price = float(ds.price_table().excavation_rate(0.0)) * trench_width
     if terrain_surface is not None:
         # price dips and rises between the sites from the ground profile of every candidate
         off, st, gz = terrain_surface.profiles(sites.xy[e[:, 0]], sites.xy[e[:, 1]],

@@ -15,8 +15,10 @@ Layout of a project file (all sections optional except ``[sites]``)::
     [costs]        length, land, climb, descent, steep_slope_pct, steep_per_m, fixed
     [candidates]   method, k, max_link_m, max_complete_nodes
     [tree]         roots, allow_forest, use_site_z, layout
-    [design]       system, catalog (pipe catalog CSV), and any design setting
-                   (see mainspan.hydraulics.DesignSettings)
+    [design]       system, catalog (pipe catalog CSV), prices (price table CSV or TOML),
+                   and any design setting (see mainspan.hydraulics.DesignSettings)
+    [prices]       the price table itself (see mainspan.prices); a [design] prices
+                   file wins over it
     [output]       gpkg, overwrite, report, dxf, landxml, links_csv, quantities_csv
     [scenarios.NAME]  any of the sections above, overriding the base for that scenario;
                       ``description`` says what the scenario is.
@@ -52,12 +54,16 @@ SCHEMA = {
     "design": None,     # filled from DesignSettings
     "output": {"gpkg": _STR, "overwrite": _BOOL, "report": _STR, "dxf": _STR, "landxml": _STR,
                "links_csv": _STR, "quantities_csv": _STR},
+    "prices": {"placeholder": _BOOL, "excavation": _TABLE, "shoring": _TABLE, "bedding": _NUM,
+               "reinstatement": _TABLE, "fitting": _TABLE, "manhole": _TABLE, "crossing": _NUM,
+               "pump_station": _TABLE, "energy": _TABLE, "operation": _TABLE},
     "scenarios": _TABLE,
     "stability": {"runs": _INT, "perturb_pct": _NUM, "seed": _INT},
 }
 _PATH_KEYS = {("sites", "path"), ("rasters", "terrain"), ("output", "gpkg"), ("output", "report"),
               ("output", "dxf"), ("output", "landxml"), ("output", "links_csv"),
-              ("output", "quantities_csv"), ("design", "catalog")}
+              ("output", "quantities_csv"), ("design", "catalog"),
+              ("design", "prices")}
 
 
 def _dataclass_schema(cls):
@@ -209,6 +215,10 @@ def load_project(path) -> Project:
     if "sites" not in base or "path" not in base["sites"]:
         raise InputError(f"project {path!r}: [sites] path is required (the point layer of sites)")
     base = _resolve_paths(base, root)
+    if "prices" in base:        # check the table now, while its lines can be named
+        from .prices import prices_from_mapping
+        with open(path, encoding="utf-8", errors="replace") as f:
+            prices_from_mapping(base["prices"], where=f"project {path} [prices]", text=f.read())
     scen = {}
     for name, body in (doc.get("scenarios") or {}).items():
         if not isinstance(body, dict):
@@ -269,6 +279,8 @@ def plan_kwargs(settings: dict):
         if k in t:
             plan[k] = t[k]
     d = dict(settings.get("design", {}))
+    if settings.get("prices") and "prices" not in d:
+        d["prices"] = dict(settings["prices"])
     if "system" in d:
         plan["system"] = d.pop("system")
     if d:

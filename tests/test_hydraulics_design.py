@@ -55,12 +55,13 @@ def test_pressure_hand_solved_minimum_source_head():
     np.testing.assert_allclose(r.link_fields["hgl_from_m"] - r.link_fields["hgl_to_m"], h)
     assert r.failures == [] and set(r.link_fields["checks"]) == {"ok"}
     assert r.link_fields["flow_direction"].tolist() == ["from→to"] * 4
-    # bill of quantities: one pipe; trench = 25/m3 x (0.110 + 0.6) wide x (0.9 + 0.110 + 0.1) deep
+    # bill of quantities: one pipe; excavation = 25/m3 x (0.110 + 0.6) wide x (0.9 + 0.110 + 0.1) deep
     q = r.quantities
-    assert q["pipe"].tolist() == ["T100", "TOTAL"]
+    assert q["pipe"][q["category"] == "pipe"].tolist() == ["T100"] and q["pipe"][-1] == "TOTAL"
     assert q["length_m"][-1] == pytest.approx(LEN.sum())
     assert q["pipe_cost"][-1] == pytest.approx(10.0 * LEN.sum())
-    assert q["trench_cost"][-1] == pytest.approx(25.0 * 0.71 * 1.11 * LEN.sum())
+    # + the placeholder price table's bedding (45/m3 x 0.71 x 0.1) and reinstatement (4/m2 x 0.71); 1.11 m < 1.5 m: no shoring
+    assert q["trench_cost"][-1] == pytest.approx((25.0 * 0.71 * 1.11 + 45.0 * 0.71 * 0.1 + 4.0 * 0.71) * LEN.sum())
     assert r.summary["total_cost"] == pytest.approx(q["total_cost"][-1])
     assert r.caution == CAUTION and "licensed engineer" in CAUTION
 
@@ -323,7 +324,7 @@ def test_result_docstring_lists_the_fields_returned():
     for r in (p, g):
         assert set(r.link_fields) <= names(link_doc) | {"pipe", "material", "checks", "reversed"}
         assert set(r.node_fields) <= names(node_doc) | {"checks"}
-        assert set(r.quantities) <= names(q_doc) | {"pipe", "material", "count"}
+        assert set(r.quantities) <= names(q_doc) | {"pipe", "material", "count", "category", "item", "unit", "quantity"}
     assert {"headloss_m", "hgl_from_m", "hgl_to_m", "pressure_min_m", "rating_m"} <= set(p.link_fields)
     assert {"invert_up_m", "invert_down_m", "slope_pct", "depth_max_m", "cover_min_m", "capacity_lps",
             "depth_ratio", "n_access_points"} <= set(g.link_fields)

@@ -51,12 +51,14 @@ import numpy as np
 
 from ..errors import InputError
 from ..network import FLOW_FROM_TO, accumulate, design_flow_lps, rooted_network
+from ..prices import PriceTable, default_prices
 from .catalog import PipeCatalog, default_catalog
 from .friction import water_kinematic_viscosity_m2ps
 from .gravity import MIN_SLOPE_TABLE_PCT
 from .basis import check_basis_settings, sanitary_flows, storm_flows
 from .gravity_design import design_gravity
 from .pressure import HEADLOSS_METHODS, hydraulic_grade, size_pressure
+from .quantities import bill_of_quantities, pipe_rows
 
 __all__ = ["CAUTION", "SYSTEMS", "DesignSettings", "DesignResult", "design_network"]
 
@@ -80,8 +82,14 @@ class DesignSettings:
         Design flow = peaking_factor × accumulated demand.
     min_flow_lps : float, default=0.0
         Floor on every link's design flow.
-    trench_cost_per_m3 : float, default=25.0
-        Excavation price per m³ (placeholder demo price).
+    trench_cost_per_m3 : float or None, default=None
+        A flat excavation price per m³ at every depth, overriding the price
+        table's depth bands; None uses ``prices``.
+    prices : PriceTable or None, default=None
+        Unit prices for trenches (excavation by depth band, shoring, bedding,
+        reinstatement), fittings, structures, pump stations and energy; None:
+        :func:`mainspan.prices.default_prices` (invented placeholders).  Pipe
+        supply and lay stays in the catalog.
     trench_side_clearance_m : float, default=0.3
         Working space each side of the pipe (common practice).
     bedding_m : float, default=0.1
@@ -157,7 +165,8 @@ class DesignSettings:
 
     peaking_factor: float = 1.0
     min_flow_lps: float = 0.0
-    trench_cost_per_m3: float = 25.0
+    trench_cost_per_m3: float | None = None
+    prices: PriceTable | None = None
     trench_side_clearance_m: float = 0.3
     bedding_m: float = 0.1
     pressure_catalog: PipeCatalog | None = None
@@ -187,12 +196,18 @@ class DesignSettings:
     storm_min_velocity_mps: float = 0.9
     # --- end of the design basis ---
 
+    def price_table(self) -> PriceTable:
+        """The prices in force: ``prices`` (or the defaults), with ``trench_cost_per_m3`` applied."""
+        p = self.prices if self.prices is not None else default_prices()
+        if self.trench_cost_per_m3 is not None:
+            p = replace(p, excavation_depth_to_m=(np.inf,), excavation_per_m3=(float(self.trench_cost_per_m3),))
+        return p
+
     def __post_init__(self):
         object.__setattr__(self, "idf", check_basis_settings(self))  # the design basis keys
         rules = {
             "peaking_factor": ("> 0", "use 1.0 for no peaking"),
             "min_flow_lps": (">= 0", "use 0 for no floor"),
-            "trench_cost_per_m3": (">= 0", "give a price per cubic metre"),
             "trench_side_clearance_m": (">= 0", "give the working space each side in metres"),
             "bedding_m": (">= 0", "give the bedding depth in metres"),
             "velocity_max_mps": ("> 0", "set a positive velocity"),
@@ -209,6 +224,10 @@ class DesignSettings:
         }
         for name, (rule, fix) in rules.items():
             _check_number(name, getattr(self, name), rule, fix)
+        if self.trench_cost_per_m3 is not None:
+            _check_number("trench_cost_per_m3", self.trench_cost_per_m3, ">= 0", "give a price per cubic metre, or None for the price table")
+        if self.prices is not None and not isinstance(self.prices, PriceTable):
+            raise InputError(f"design option 'prices' must be a PriceTable or None, got {type(self.prices).__name__}; use read_prices(path)")
         if self.headloss_max_m_per_km is not None:
             _check_number("headloss_max_m_per_km", self.headloss_max_m_per_km, "> 0", "give m per km, or None to disable")
         t = self.water_temperature_c
@@ -260,8 +279,8 @@ class DesignResult:
         Always: from_node, to_node (oriented), reversed, flow_lps,
         design_flow_lps, flow_direction, pipe, material, diameter_mm (inner),
         nominal_mm, velocity_mps, pipe_length_m, trench_depth_m, pipe_cost,
-        trench_cost, land_cost, checks.  Pressure adds headloss_m,
-        hgl_from_m, hgl_to_m, pressure_min_m, rating_m.  Gravity adds
+        trench_cost, land_cost, checks.  Pressure adds headloss_m
+        (= friction_loss_m + minor_loss_m), hgl_from_m, hgl_to_m, pressure_min_m, rating_m.  Gravity adds
         manning_n, invert_up_m, invert_down_m, slope_pct, min_slope_pct,
         depth_max_m, cover_min_m, capacity_lps, velocity_full_mps,
         depth_ratio, n_access_points.
@@ -269,9 +288,12 @@ class DesignResult:
         Always: hops_to_root, checks.  Pressure: hgl_m, pressure_head_m,
         static_head_m.  Gravity: invert_m, depth_m.
     quantities : dict of str to ndarray
-        Bill of quantities, one row per catalog pipe used plus a final
-        "TOTAL" row: pipe, material, nominal_mm, inner_mm, count, length_m,
-        pipe_cost, trench_cost, land_cost, total_cost.
+        Bill of quantities (:mod:`mainspan.hydraulics.quantities`): one row
+        per catalog pipe used, then priced items (fittings, structures,
+        pump station, energy present value), then a final "TOTAL" row:
+        category, item, unit, quantity, unit_cost, pipe, material,
+        nominal_mm, inner_mm, count, length_m, pipe_cost, trench_cost,
+        land_cost, total_cost.
     access_points : dict of str to ndarray
         Gravity only (empty arrays otherwise): link, chainage_m (from the
         link's from_node), x, y, ground_m, invert_m.
@@ -570,6 +592,8 @@ def design_network(
             flow_direction=np.full(L, FLOW_FROM_TO, dtype=object),
             velocity_mps=sized.velocity_mps,
             headloss_m=sized.headloss_m,
+            friction_loss_m=sized.friction_loss_m,
+            minor_loss_m=sized.minor_loss_m,
             hgl_from_m=hgl[net.from_node],
             hgl_to_m=hgl[net.to_node],
             pressure_min_m=p_min,
@@ -605,7 +629,9 @@ def design_network(
 
     width = cat_used.nominal_mm[pipe] / 1000.0 + 2.0 * s.trench_side_clearance_m
     trench_len = surf if system == "pressure" else plan
-    trench_cost = s.trench_cost_per_m3 * width * trench_depth * trench_len
+    prices = s.price_table()
+    trench_parts = prices.trench_parts(trench_depth, width, trench_len, bedding_m=s.bedding_m)
+    trench_cost = sum(trench_parts.values())
     pipe_cost = cat_used.cost_per_m[pipe] * pipe_len
     links.update(
         pipe=cat_used.name[pipe],
@@ -620,7 +646,8 @@ def design_network(
     )
     links["checks"] = _checks(L, flags_l)
     nodes["checks"] = _checks(n, flags_n)
-    quantities = _quantities(cat_used, pipe, pipe_len, pipe_cost, trench_cost, land)
+    bill_items = []          # priced rows beyond the pipes: quantities.Item(category, item, unit, quantity, unit_cost)
+    quantities = bill_of_quantities(pipe_rows(cat_used, pipe, pipe_len, pipe_cost, trench_cost, land), bill_items)
     failures = []
     for kind, i, check, text in sorted(details, key=lambda t: (t[0] != "link", t[1], t[2])):
         if kind == "link":
@@ -636,7 +663,11 @@ def design_network(
         pipe_cost=float(pipe_cost.sum()),
         trench_cost=float(trench_cost.sum()),
         land_cost=float(land.sum()),
-        total_cost=float(pipe_cost.sum() + trench_cost.sum() + land.sum()),
+        trench_breakdown={k: float(v.sum()) for k, v in trench_parts.items()},
+        total_cost=float(quantities["total_cost"][-1]),
+        energy_cost_pv=0.0,
+        whole_life_cost=float(quantities["total_cost"][-1]),
+        prices=prices.describe(),
         failing_checks=counts,
         n_failures=len(failures),
         notes=notes,
@@ -653,25 +684,3 @@ def _checks(size, flags):
         out[m] = np.where(out[m] == "", name, out[m] + ";" + name)
     out[out == ""] = "ok"
     return out
-
-
-def _quantities(cat, pipe, length, pipe_cost, trench_cost, land):
-    used, inv = np.unique(pipe, return_inverse=True)
-    p = used.size
-
-    def total(x):
-        return np.bincount(inv, weights=x, minlength=p)
-
-    cols = {
-        "pipe": np.append(cat.name[used], "TOTAL").astype(object),
-        "material": np.append(cat.material[used], "").astype(object),
-        "nominal_mm": np.append(cat.nominal_mm[used], np.nan),
-        "inner_mm": np.append(cat.inner_mm[used], np.nan),
-        "count": np.append(np.bincount(inv, minlength=p), pipe.size).astype(np.int64),
-        "length_m": np.append(total(length), length.sum()),
-        "pipe_cost": np.append(total(pipe_cost), pipe_cost.sum()),
-        "trench_cost": np.append(total(trench_cost), trench_cost.sum()),
-        "land_cost": np.append(total(land), land.sum()),
-    }
-    cols["total_cost"] = cols["pipe_cost"] + cols["trench_cost"] + cols["land_cost"]
-    return cols

@@ -32,6 +32,8 @@ class PressureSizing(NamedTuple):
     no_pipe: np.ndarray  #: True where no catalog pipe meets the limits (largest assigned)
     velocity_mps: np.ndarray
     headloss_m: np.ndarray  #: friction plus minor losses over the link
+    friction_loss_m: np.ndarray = None  #: friction loss over the link
+    minor_loss_m: np.ndarray = None  #: minor losses (fittings, valves, bends): headloss_m - friction_loss_m
 
 
 def pipe_headloss_m(flow_m3ps, length_m, inner_m, roughness_m, hw_c, *, method, nu_m2ps, minor_loss_factor):
@@ -111,9 +113,11 @@ def size_pressure(
         pipe[s : s + _CHUNK] = np.where(any_ok, np.argmax(ok, axis=1), n_pipes - 1)
         no_pipe[s : s + _CHUNK] = ~any_ok
     velocity = q / area[pipe] if n_links else np.zeros(0)
-    headloss = pipe_headloss_m(q, length, d[pipe], eps[pipe], catalog.hw_c[pipe], method=method,
-                               nu_m2ps=nu_m2ps, minor_loss_factor=minor_loss_factor)
-    return PressureSizing(pipe=pipe, no_pipe=no_pipe, velocity_mps=velocity, headloss_m=np.asarray(headloss, np.float64))
+    friction = np.asarray(pipe_headloss_m(q, length, d[pipe], eps[pipe], catalog.hw_c[pipe], method=method,
+                                          nu_m2ps=nu_m2ps, minor_loss_factor=0.0), np.float64)
+    minor = friction * minor_loss_factor
+    return PressureSizing(pipe=pipe, no_pipe=no_pipe, velocity_mps=velocity, headloss_m=friction + minor,
+                          friction_loss_m=friction, minor_loss_m=minor)
 
 
 def hydraulic_grade(net: RootedNetwork, headloss_m, ground_m, *, source_head_m=None, min_pressure_m=14.0):
