@@ -202,7 +202,22 @@ class Layout:
             lines.insert(5, f"gravity layout  arborescence {float(ri['gravity_layout_cost']):,.1f} "
                          f"vs Prim tree {float(ri['prim_layout_cost_same_pricing']):,.1f} priced "
                          f"by flow direction ({ri['gravity_layout_saving_pct']} % saved)")
+        if ri.get("depth_layout_rounds"):
+            lines.insert(6, "depth-aware     " + depth_layout_text(ri))
         return "\n".join(lines)
+
+
+def depth_layout_text(ri) -> str:
+    """One line: the depth-aware gravity layout against the earlier layout (from run_info)."""
+    f = float
+    return (f"{ri['depth_layout_rounds']} round(s), "
+            f"{'settled' if ri['depth_layout_settled'] == 'true' else 'kept the cheapest'}, "
+            f"{ri['depth_layout_links_changed']} links moved: design cost "
+            f"{f(ri['depth_layout_cost_before']):,.0f} -> {f(ri['depth_layout_cost_after']):,.0f} "
+            f"({f(ri['depth_layout_saving_pct']):.1f} % saved), failed checks "
+            f"{ri['depth_layout_failures_before']} -> {ri['depth_layout_failures_after']}, deepest "
+            f"invert {f(ri['depth_layout_max_depth_before_m']):.2f} -> "
+            f"{f(ri['depth_layout_max_depth_after_m']):.2f} m")
 
 
 def _col(v):
@@ -629,6 +644,9 @@ def _run_info(lay, sites, cands, costs, tree, cert, directed, system, params, in
         info["gravity_layout_cost"] = f"{a:.3f}"
         info["prim_layout_cost_same_pricing"] = f"{b:.3f}"
         info["gravity_layout_saving_pct"] = f"{100 * (b - a) / b:.2f}" if b > 0 else "0"
+        for k_, v in (directed.get("depth_layout") or {}).items():   # depth-aware rounds
+            info[f"depth_layout_{k_}"] = (f"{v:.3f}" if isinstance(v, float) else str(v).lower()
+                                          if isinstance(v, bool) else str(v))
     return info
 
 
@@ -764,14 +782,19 @@ def _design_settings(design, system):
 
 def _gravity_tree(sites, edges, keep, w_all, costs, elev, root_idx, design,
                   terrain_surface=None, sample_spacing_m=None):
-    """Minimum arborescence towards the outlet on direction-dependent costs.
+    """Minimum arborescence towards the outlet on direction-dependent, depth-aware costs.
+
+    The arcs are priced by the trench each flow direction needs and the tree
+    is grown, designed and re-priced until it repeats
+    (:func:`mainspan.gravity_layout.depth_aware_tree`); round 0 is the
+    earlier layout, priced by extra depth below minimum cover only.
 
     Returns a :class:`~mainspan.spanning.Tree` over candidate indices and a
-    dict with per-node directed link costs and the comparison with Prim's
-    tree priced the same way.
+    dict with per-node directed link costs, the comparison with Prim's
+    tree priced the same way, and the rounds (``depth_layout``).
     """
-    from .arborescence import (directional_link_costs, min_arborescence,
-                               profile_directional_costs)
+    # --- gravity layout (mainspan.gravity_layout) ---
+    from .gravity_layout import depth_aware_tree
     from .network import rooted_network
     from .spanning import Tree, prim_tree
 
@@ -785,25 +808,47 @@ def _gravity_tree(sites, edges, keep, w_all, costs, elev, root_idx, design,
     n = sites.n
     e = edges[keep]
     w = w_all[keep]
-    length = np.asarray(costs.components["length_m"], float)[keep]
+    comp = costs.components
+    length = np.asarray(comp["length_m"], float)[keep]
     ds = _design_settings(design, "gravity")
-    slope = min(p for _, p in ds.gravity_min_slope_table_pct) / 100.0
-    trench_width = 0.2 + 2 * ds.trench_side_clearance_m
-    price = float(ds.price_table().excavation_rate(0.0)) * trench_width
     if terrain_surface is not None:
         # price dips and rises between the sites from the ground profile of every candidate
         off, st, gz = terrain_surface.profiles(sites.xy[e[:, 0]], sites.xy[e[:, 1]],
                                                spacing_m=sample_spacing_m)
+        off = np.asarray(off, np.int64)
+        st = np.asarray(st, float)
         gz = np.asarray(gz, float).copy()
-        # the ends take the sites' own elevations, as the design stage does
-        gz[np.asarray(off[:-1])] = elev[e[:, 0]]
-        gz[np.asarray(off[1:]) - 1] = elev[e[:, 1]]
-        arcs = profile_directional_costs(e, w, length, off, st, gz, min_slope=slope,
-                                         extra_depth_cost_per_m2=price)
-    else:
-        arcs = directional_link_costs(e, w, length, elev, min_slope=slope,
-                                      extra_depth_cost_per_m2=price)
-    arb = min_arborescence(n, arcs.tails, arcs.heads, arcs.weights, root=root)
+    else:   # straight ground between the sites
+        off = np.arange(0, 2 * len(e) + 1, 2, dtype=np.int64)
+        st = np.zeros(2 * len(e))
+        st[1::2] = length
+        gz = np.zeros(2 * len(e))
+    # the ends take the sites' own elevations, as the design stage does
+    gz[off[:-1]] = elev[e[:, 0]]
+    gz[off[1:] - 1] = elev[e[:, 1]]
+    surf_len = np.asarray(comp.get("surface_length_m", comp["length_m"]), float)[keep]
+    land = comp.get("land_cost")
+    land = None if land is None else np.asarray(land, float)[keep]
+    basis = {k: np.asarray(getattr(sites, k), float) for k in ("area_ha", "runoff_c", "population")
+             if getattr(sites, k, None) is not None}
+
+    def design_fn(parent, arc_link):
+        from .hydraulics import design_network
+
+        child = np.flatnonzero(parent >= 0)
+        k = arc_link[child]
+        cnt = np.diff(off)[k]
+        sub_off = np.concatenate([[0], np.cumsum(cnt)]).astype(np.int64)
+        idx = np.repeat(off[k], cnt) + (np.arange(cnt.sum()) - np.repeat(sub_off[:-1], cnt))
+        return design_network(
+            "gravity", xy=sites.xy, elevation_m=elev, demand_lps=sites.demand,
+            node_id=sites.node_id, from_node=e[k, 0], to_node=e[k, 1], length_m=length[k],
+            surface_length_m=surf_len[k], roots=[root], profile_offsets=sub_off,
+            profile_station_m=st[idx], profile_ground_m=gz[idx],
+            land_cost=None if land is None else land[k], settings=ds, **basis)
+
+    arb, arcs, rounds = depth_aware_tree(n, e, w, length, off, st, gz, root=root, settings=ds,
+                                         design_fn=design_fn)
     child = np.flatnonzero(arb.parent >= 0)
     net = rooted_network(n, arb.parent[child], child, roots=[root])
     pe = np.full(n, -1, dtype=np.int64)
@@ -819,4 +864,5 @@ def _gravity_tree(sites, edges, keep, w_all, costs, elev, root_idx, design,
     arc = 2 * pt.parent_edge[pc] + (e[pt.parent_edge[pc], 0] != pt.parent[pc])
     prim_directed = float(arcs.weights[arc].sum())
     return tree, {"cost": node_cost, "arborescence_cost": float(arb.total_weight),
-                  "prim_cost_same_pricing": prim_directed}
+                  "prim_cost_same_pricing": prim_directed, "depth_layout": rounds.summary()}
+    # --- end of the gravity layout ---
