@@ -51,7 +51,8 @@ import numpy as np
 from .arborescence import DirectedLinks, min_arborescence, profile_directional_costs
 from .errors import InputError
 
-__all__ = ["DepthPrices", "price_table", "depth_arc_costs", "depth_aware_tree", "GravityLayoutRounds"]
+__all__ = ["DepthPrices", "CarriedDepth", "GravityLayoutRounds", "price_table", "depth_arc_costs",
+           "depth_aware_tree", "tree_designer"]
 
 
 @dataclass(frozen=True)
@@ -311,6 +312,55 @@ def depth_arc_costs(edges, base_cost, length_m, profile_offsets, profile_station
     tails[1::2], heads[1::2], weights[1::2] = v, u, w_uv
     return DirectedLinks(tails=tails, heads=heads, weights=weights,
                          link=np.repeat(np.arange(m, dtype=np.int64), 2))
+
+
+def tree_designer(xy, elevation_m, demand_lps, node_id, edges, length_m, profile_offsets,
+                  profile_station_m, profile_ground_m, *, root, settings, surface_length_m=None,
+                  land_cost=None, basis_fields=None):
+    """A ``design_fn`` for :func:`depth_aware_tree`: designs a tree of candidate links.
+
+    Parameters
+    ----------
+    xy, elevation_m, demand_lps, node_id : array_like, per node
+    edges, length_m : array_like, per candidate link
+    profile_offsets, profile_station_m, profile_ground_m : array_like
+        Candidate ground profiles (CSR, stations from ``edges[:, 0]``).
+    root : int
+    settings : DesignSettings
+    surface_length_m, land_cost : array_like, per candidate link, optional
+    basis_fields : dict, optional
+        ``area_ha``, ``runoff_c``, ``population`` per node.
+
+    Returns
+    -------
+    callable
+        ``design_fn(parent, arc_link) -> DesignResult``, links in the order of
+        ``np.flatnonzero(parent >= 0)``.
+    """
+    from .hydraulics import design_network
+
+    e = np.asarray(edges, dtype=np.int64).reshape(-1, 2)
+    off = np.asarray(profile_offsets, dtype=np.int64)
+    st = np.asarray(profile_station_m, dtype=np.float64)
+    gz = np.asarray(profile_ground_m, dtype=np.float64)
+    length = np.asarray(length_m, dtype=np.float64)
+    surf = length if surface_length_m is None else np.asarray(surface_length_m, dtype=np.float64)
+    basis = dict(basis_fields or {})
+
+    def design_fn(parent, arc_link):
+        child = np.flatnonzero(np.asarray(parent) >= 0)
+        k = np.asarray(arc_link)[child]
+        cnt = np.diff(off)[k]
+        sub_off = np.concatenate([[0], np.cumsum(cnt)]).astype(np.int64)
+        idx = np.repeat(off[k], cnt) + (np.arange(cnt.sum()) - np.repeat(sub_off[:-1], cnt))
+        return design_network(
+            "gravity", xy=xy, elevation_m=elevation_m, demand_lps=demand_lps, node_id=node_id,
+            from_node=e[k, 0], to_node=e[k, 1], length_m=length[k], surface_length_m=surf[k],
+            roots=[root], profile_offsets=sub_off, profile_station_m=st[idx], profile_ground_m=gz[idx],
+            land_cost=None if land_cost is None else np.asarray(land_cost, np.float64)[k],
+            settings=settings, **basis)
+
+    return design_fn
 
 
 def _design_cost(summary):

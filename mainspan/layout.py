@@ -794,7 +794,7 @@ def _gravity_tree(sites, edges, keep, w_all, costs, elev, root_idx, design,
     tree priced the same way, and the rounds (``depth_layout``).
     """
     # --- gravity layout (mainspan.gravity_layout) ---
-    from .gravity_layout import depth_aware_tree
+    from .gravity_layout import depth_aware_tree, tree_designer
     from .network import rooted_network
     from .spanning import Tree, prim_tree
 
@@ -828,25 +828,12 @@ def _gravity_tree(sites, edges, keep, w_all, costs, elev, root_idx, design,
     gz[off[1:] - 1] = elev[e[:, 1]]
     surf_len = np.asarray(comp.get("surface_length_m", comp["length_m"]), float)[keep]
     land = comp.get("land_cost")
-    land = None if land is None else np.asarray(land, float)[keep]
     basis = {k: np.asarray(getattr(sites, k), float) for k in ("area_ha", "runoff_c", "population")
              if getattr(sites, k, None) is not None}
-
-    def design_fn(parent, arc_link):
-        from .hydraulics import design_network
-
-        child = np.flatnonzero(parent >= 0)
-        k = arc_link[child]
-        cnt = np.diff(off)[k]
-        sub_off = np.concatenate([[0], np.cumsum(cnt)]).astype(np.int64)
-        idx = np.repeat(off[k], cnt) + (np.arange(cnt.sum()) - np.repeat(sub_off[:-1], cnt))
-        return design_network(
-            "gravity", xy=sites.xy, elevation_m=elev, demand_lps=sites.demand,
-            node_id=sites.node_id, from_node=e[k, 0], to_node=e[k, 1], length_m=length[k],
-            surface_length_m=surf_len[k], roots=[root], profile_offsets=sub_off,
-            profile_station_m=st[idx], profile_ground_m=gz[idx],
-            land_cost=None if land is None else land[k], settings=ds, **basis)
-
+    design_fn = tree_designer(sites.xy, elev, sites.demand, sites.node_id, e, length, off, st, gz,
+                              root=root, settings=ds, surface_length_m=surf_len,
+                              land_cost=None if land is None else np.asarray(land, float)[keep],
+                              basis_fields=basis)
     arb, arcs, rounds = depth_aware_tree(n, e, w, length, off, st, gz, root=root, settings=ds,
                                          design_fn=design_fn)
     child = np.flatnonzero(arb.parent >= 0)
