@@ -39,7 +39,8 @@ reports it, else ``total_cost``; ties to the earlier round) is kept, so the
 result is never dearer than round 0 under the design's own pricing.  Same
 input, same rounds, same tree.
 
-Prices are placeholders until the user gives theirs (see the price table).
+Prices come from the design's price table (:mod:`mainspan.prices`; its
+defaults are placeholders until the user gives theirs).
 """
 
 from __future__ import annotations
@@ -51,56 +52,13 @@ import numpy as np
 from .arborescence import DirectedLinks, min_arborescence, profile_directional_costs
 from .errors import InputError
 
-__all__ = ["DepthPrices", "CarriedDepth", "GravityLayoutRounds", "price_table", "depth_arc_costs",
+__all__ = ["CarriedDepth", "GravityLayoutRounds", "price_table", "depth_arc_costs",
            "depth_aware_tree", "tree_designer"]
 
 
-@dataclass(frozen=True)
-class DepthPrices:
-    """A small depth-cost model with the price table's interface (placeholder prices).
-
-    Used only when :mod:`mainspan.prices` is not available.  Excavation per
-    m³ rises by depth band (0–1.5 m, 1.5–3 m, 3–4.5 m, deeper); shoring is
-    priced per m² of both trench walls of a trench deeper than 1.5 m;
-    a manhole costs a base price plus a price per metre of depth.  All
-    prices invented for the demo.
-    """
-
-    band_top_m: tuple = (0.0, 1.5, 3.0, 4.5)
-    excavation_per_m3: tuple = (25.0, 32.0, 40.0, 52.0)
-    shoring_depth_m: float = 1.5
-    shoring_per_m2: float = 18.0
-    manhole_base: float = 1800.0
-    manhole_per_m: float = 650.0
-    drop_extra: float = 900.0
-    placeholder: bool = True
-
-    def trench_cost(self, depth_m, width_m, length_m, surface_class=None):
-        d = np.maximum(np.asarray(depth_m, dtype=np.float64), 0.0)
-        tops = np.asarray(self.band_top_m + (np.inf,))
-        rates = np.asarray(self.excavation_per_m3)
-        vol_per_m = np.zeros_like(d)
-        for k in range(rates.size):
-            vol_per_m += rates[k] * np.clip(d - tops[k], 0.0, tops[k + 1] - tops[k])
-        w, ln = np.asarray(width_m, dtype=np.float64), np.asarray(length_m, dtype=np.float64)
-        shoring = np.where(d > self.shoring_depth_m, 2.0 * d * self.shoring_per_m2, 0.0)
-        return (vol_per_m * w + shoring) * ln
-
-    def manhole_cost(self, depth_m, drop=False):
-        d = np.maximum(np.asarray(depth_m, dtype=np.float64), 0.0)
-        return self.manhole_base + self.manhole_per_m * d + (self.drop_extra if drop else 0.0)
-
-
 def price_table(settings):
-    """The price table a design uses: ``settings.prices``, the defaults, or :class:`DepthPrices`."""
-    table = getattr(settings, "prices", None)
-    if table is not None:
-        return table
-    try:
-        from .prices import default_prices
-    except ImportError:
-        return DepthPrices()
-    return default_prices()
+    """The price table of a design: ``settings.price_table()`` (the user's prices or the defaults)."""
+    return settings.price_table()
 
 
 @dataclass
@@ -226,9 +184,8 @@ def depth_arc_costs(edges, base_cost, length_m, profile_offsets, profile_station
         (the depth carried in from upstream; 0 = minimum cover).
     flow_lps : array_like, shape (n,)
         Design flow leaving each node.
-    prices : price table, optional
-        Anything with ``trench_cost(depth_m, width_m, length_m)`` and
-        ``manhole_cost(depth_m)``; default :func:`price_table`.
+    prices : PriceTable, optional
+        Default: the settings' price table (:mod:`mainspan.prices`).
     carry : CarriedDepth, optional
         The previous design, to price the depth an arc hands on downstream
         (see :class:`CarriedDepth`); None prices each link on its own.
@@ -290,7 +247,8 @@ def depth_arc_costs(edges, base_cost, length_m, profile_offsets, profile_station
         seg_len = np.abs(np.diff(s_up))[same]
         seg_depth = 0.5 * (depth[1:] + depth[:-1])[same]
         width = nominal[pick] + 2.0 * s.trench_side_clearance_m
-        trench = np.bincount(seg_link, weights=prices.trench_cost(seg_depth, width[seg_link], seg_len),
+        trench = np.bincount(seg_link, weights=prices.trench_cost(seg_depth, width[seg_link], seg_len,
+                                                                 bedding_m=s.bedding_m),
                              minlength=m)
         mean_depth = np.bincount(seg_link, weights=seg_depth * seg_len, minlength=m) / np.maximum(L, 1e-9)
         n_access = np.where(L > spacing, np.ceil(L / spacing - 1e-12) - 1.0, 0.0)
@@ -390,8 +348,8 @@ def depth_aware_tree(n_nodes, edges, base_cost, length_m, profile_offsets, profi
         Rounds after round 0.
     min_slope, legacy_price_per_m2 : float, optional
         Round 0's pricing (the earlier layout); default: the smallest
-        tabulated minimum slope and the trench price per m³ × a 200 mm
-        pipe's trench width.
+        tabulated minimum slope and the shallowest excavation price per
+        m³ × a 200 mm pipe's trench width.
 
     Returns
     -------
@@ -405,7 +363,7 @@ def depth_aware_tree(n_nodes, edges, base_cost, length_m, profile_offsets, profi
     if min_slope is None:
         min_slope = min(p for _, p in s.gravity_min_slope_table_pct) / 100.0
     if legacy_price_per_m2 is None:
-        legacy_price_per_m2 = s.trench_cost_per_m3 * (0.2 + 2 * s.trench_side_clearance_m)
+        legacy_price_per_m2 = float(s.price_table().excavation_rate(0.0)) * (0.2 + 2 * s.trench_side_clearance_m)
     e = np.asarray(edges, dtype=np.int64).reshape(-1, 2)
     arcs = profile_directional_costs(e, base_cost, length_m, profile_offsets, profile_station_m,
                                      profile_ground_m, min_slope=min_slope,

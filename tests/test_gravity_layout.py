@@ -4,8 +4,7 @@ import numpy as np
 import pytest
 
 from mainspan.arborescence import min_arborescence
-from mainspan.gravity_layout import (CarriedDepth, DepthPrices, depth_arc_costs, depth_aware_tree,
-                                     tree_designer)
+from mainspan.gravity_layout import CarriedDepth, depth_arc_costs, depth_aware_tree, tree_designer
 from mainspan.hydraulics import DesignSettings
 
 # Two valleys split by a ridge that stops short of the east end (x < 380 m): the north one
@@ -91,21 +90,12 @@ def test_round_zero_only_is_the_earlier_layout():
 
     e, length, off, st, gz = _candidates()
     _, _, arb, _, rounds = _run(max_rounds=0)
+    # the earlier pricing: extra depth below cover at the shallowest excavation price x 0.8 m width
+    rate = float(DesignSettings().price_table().excavation_rate(0.0))
     old = profile_directional_costs(e, 60.0 * length, length, off, st, gz, min_slope=0.004,
-                                    extra_depth_cost_per_m2=25.0 * 0.8)
+                                    extra_depth_cost_per_m2=rate * 0.8)
     ref = min_arborescence(len(XY), old.tails, old.heads, old.weights, root=0)
     assert np.array_equal(arb.parent, ref.parent) and len(rounds.parents) == 1
-
-
-def test_depth_prices_by_hand():
-    p = DepthPrices()
-    # 2.0 m deep, 1.0 m wide, 10 m long: excavation 1.5 m at 25 + 0.5 m at 32 per m2 of section
-    # = 53.5 per m; shoring of both walls (deeper than 1.5 m): 2 x 2.0 m x 18 = 72 per m
-    # (placeholder prices; the 1.5 m shoring depth is common practice, no single source)
-    assert p.trench_cost(2.0, 1.0, 10.0) == pytest.approx(10 * (53.5 + 72.0))
-    assert p.trench_cost(1.2, 1.0, 10.0) == pytest.approx(10 * 1.2 * 25.0)
-    assert p.trench_cost([5.0], 0.5, 1.0)[0] == pytest.approx(0.5 * (37.5 + 48 + 60 + 26) + 180)
-    assert p.manhole_cost(3.0) == pytest.approx(1800 + 3 * 650)
 
 
 def test_carried_depth_by_hand():
