@@ -99,9 +99,12 @@ def _tree_options(p):
                    help="return one tree per connected part instead of failing")
     d = p.add_argument_group("design")
     d.add_argument("--system", choices=("pressure", "gravity"), help="size and check the mains")
-    d.add_argument("--layout", choices=("tree", "gravity"),
+    from .layout import LAYOUTS
+    d.add_argument("--layout", choices=LAYOUTS,
                    help="tree: Prim's minimum tree (default); gravity: minimum arborescence "
-                   "towards the outlet with direction-dependent costs")
+                   "towards the outlet with direction-dependent costs; whole-cost: the tree "
+                   "of least whole-life cost for pressure mains (sized pipes, trench, pump "
+                   "energy), searched from Prim's tree")
     d.add_argument("--catalog", metavar="CSV", help="pipe catalog CSV")
     d.add_argument("--prices", metavar="FILE",
                    help="price table (CSV or TOML; `mainspan demo` writes a template)")

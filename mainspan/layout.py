@@ -22,7 +22,13 @@ from ._version import __version__
 from .errors import CertificateError, DisconnectedError, InputError
 
 __all__ = ["Layout", "Profiles", "plan_layout", "read_layout", "file_sha256", "site_elevations",
-           "grow_tree", "assemble_layout"]
+           "grow_tree", "assemble_layout", "LAYOUTS"]
+
+# --- whole11: the layout kinds, one constant for plan_layout, the CLI and scenarios ---
+#: ``tree``: Prim's tree of link costs; ``gravity``: minimum arborescence towards the
+#: outlet; ``whole-cost``: the tree of least whole-life cost (:mod:`mainspan.wholecost`).
+LAYOUTS = ("tree", "gravity", "whole-cost")
+# --- end whole11 ---
 
 
 @dataclass
@@ -198,6 +204,14 @@ class Layout:
             f"certificate     {ri.get('certificate', '?')}",
             f"working CRS     {ri.get('working_crs', self.crs.name)}",
         ]
+        if ri.get("whole_cost_layout"):                       # whole11
+            grade = (f"; grade at the source {float(ri['source_grade_m']):,.1f} m vs "
+                     f"{float(ri['prim_source_grade_m']):,.1f} m" if ri.get("source_grade_m")
+                     else "")
+            lines.insert(5, f"whole-cost tree whole-life cost {float(ri['whole_life_cost']):,.1f} vs "
+                         f"Prim's tree {float(ri['prim_whole_life_cost']):,.1f} "
+                         f"({ri['whole_cost_saving_pct']} % saved{grade}); local optimum "
+                         "under single link exchanges")
         if ri.get("gravity_layout_cost"):
             lines.insert(5, f"gravity layout  arborescence {float(ri['gravity_layout_cost']):,.1f} "
                          f"vs Prim tree {float(ri['prim_layout_cost_same_pricing']):,.1f} priced "
@@ -362,9 +376,14 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
     system : {None, "pressure", "gravity"}
         Size and check the tree as pressure or gravity mains.
     design : DesignSettings or dict, optional
-    layout : {"tree", "gravity"}, default "tree"
+    layout : {"tree", "gravity", "whole-cost"}, default "tree"
         ``"gravity"`` grows a minimum-cost arborescence towards the outlet
         with direction-dependent costs (Chu–Liu/Edmonds) instead of Prim's tree.
+        ``"whole-cost"`` (pressure mains) chooses the tree of least whole-life
+        cost -- sized pipes, trench, fittings, pump station and energy present
+        value -- from Prim's and Prim–Dijkstra trade-off trees improved by link
+        exchange (:mod:`mainspan.wholecost`); Prim's certificate still covers
+        Prim's tree of link costs, reported beside it.
     progress : callable, optional
         ``progress(stage, done, total)``.
     extra_run_info : dict, optional
@@ -391,13 +410,16 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
     if not isinstance(sites, Sites):
         sites = read_sites(sites)
     n = sites.n
-    if layout not in ("tree", "gravity"):
-        raise InputError(f"option --layout: must be 'tree' or 'gravity', got {layout!r}")
+    if layout not in LAYOUTS:
+        raise InputError(f"option --layout: must be one of {', '.join(LAYOUTS)}, got {layout!r}")
     if system not in (None, "pressure", "gravity"):
         raise InputError(f"option --system: must be 'pressure' or 'gravity', got {system!r}")
     if layout == "gravity" and system != "gravity":
         raise InputError("option --layout gravity needs --system gravity (it grows the tree "
                          "towards a gravity outlet); add --system gravity")
+    if layout == "whole-cost" and system != "pressure":    # whole11
+        raise InputError("option --layout whole-cost needs --system pressure (it sizes the "
+                         "pressure mains of every tree it prices); add --system pressure")
     if weights is None:
         weights = CostWeights()
     elif isinstance(weights, dict):
@@ -438,7 +460,8 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
     tree, cert, directed = grow_tree(sites, edges, costs, elev, root_idx, layout=layout,
                                      allow_forest=allow_forest, design=design,
                                      node_order=getattr(cands, "node_order", None),
-                                     terrain_surface=surf, sample_spacing_m=sample_spacing_m)
+                                     terrain_surface=surf, sample_spacing_m=sample_spacing_m,
+                                     system=system)
     say("tree", 1, 1)
     land_paths = land_cost if isinstance(land_cost, dict) else (
         {"land_cost": land_cost} if land_cost is not None else {})
@@ -487,7 +510,7 @@ def site_elevations(sites, dem_elev=None, *, use_site_z=False):
 
 def grow_tree(sites, edges, costs, elev, root_idx, *, layout="tree", allow_forest=False,
               design=None, certify=True, node_order=None, terrain_surface=None,
-              sample_spacing_m=None):
+              sample_spacing_m=None, system=None, whole_cost=None):
     """Grow the tree over the passable candidates.
 
     ``node_order`` (a locality order of the nodes, as ``Candidates.node_order``)
@@ -495,7 +518,10 @@ def grow_tree(sites, edges, costs, elev, root_idx, *, layout="tree", allow_fores
 
     ``layout="tree"``: Prim's tree plus its optimality certificate (a
     failing certificate raises :class:`CertificateError`); ``"gravity"``:
-    the minimum arborescence towards the outlet on direction-dependent costs.
+    the minimum arborescence towards the outlet on direction-dependent costs;
+    ``"whole-cost"``: the tree of least whole-life cost found from Prim's tree
+    (whose certificate is returned) by :func:`mainspan.wholecost.grow_whole_cost`
+    with limits ``whole_cost`` (a ``WholeCostSettings`` or dict).
 
     Returns
     -------
@@ -516,13 +542,21 @@ def grow_tree(sites, edges, costs, elev, root_idx, *, layout="tree", allow_fores
                            node_order=node_order)
     except DisconnectedError as exc:
         raise _disconnected_message(sites, exc, int((~passable).sum())) from None
-    if not certify:
-        return _remap_tree(tree_k, keep), None, None
-    cert = certify_tree(sites.n, sub, w_all[keep], tree_k)
-    if not cert.ok:
-        raise CertificateError(
-            f"optimality certificate failed at candidate link {cert.violating_edge}: the "
-            "tree is not minimum over the candidates; this is a bug, please report it")
+    cert = None
+    if certify:
+        cert = certify_tree(sites.n, sub, w_all[keep], tree_k)
+        if not cert.ok:
+            raise CertificateError(
+                f"optimality certificate failed at candidate link {cert.violating_edge}: the "
+                "tree is not minimum over the candidates; this is a bug, please report it")
+    # --- whole11: whole-cost layout, searched from Prim's tree (certificate stays Prim's) ---
+    if layout == "whole-cost":
+        from .wholecost import grow_whole_cost
+        tree_k = grow_whole_cost(sites, edges, costs, elev, root_idx, tree_k, keep,
+                                 design=design, terrain_surface=terrain_surface,
+                                 sample_spacing_m=sample_spacing_m, allow_forest=allow_forest,
+                                 settings=whole_cost, system=system or "pressure")
+    # --- end whole11 ---
     return _remap_tree(tree_k, keep), cert, None
 
 
@@ -627,7 +661,9 @@ def _run_info(lay, sites, cands, costs, tree, cert, directed, system, params, in
         "n_links": str(lay.n_links),
         "total_length_m": f"{lay.total('length_m'):.3f}",
         "total_cost": f"{lay.total('cost'):.3f}",
-        "certificate": ("cycle property holds for all "
+        "certificate": (("Prim's tree of link costs (not the whole-cost tree chosen): "
+                         if getattr(tree, "search", None) else "") +
+                        "cycle property holds for all "
                         f"{cert.n_checked} non-tree candidates (min margin "
                         f"{cert.worst_margin:.6g})" if cert is not None and cert.ok else
                         "not applicable (directed arborescence; optimality by Edmonds)"
@@ -639,6 +675,9 @@ def _run_info(lay, sites, cands, costs, tree, cert, directed, system, params, in
         for k_, v in getattr(lay.design, "summary", {}).items():
             info[f"design:{k_}"] = str(v)
         info["design_settings"] = _fmt_dataclass(lay.design_settings)
+    if getattr(tree, "search", None):                       # whole11
+        from .wholecost import search_run_info
+        info.update(search_run_info(tree.search, lay.design))
     if directed is not None:
         a, b = directed["arborescence_cost"], directed["prim_cost_same_pricing"]
         info["gravity_layout_cost"] = f"{a:.3f}"

@@ -408,7 +408,7 @@ def _grow(sites, edges, costs, elev, root_idx, plan, *, certify=True, node_order
     return grow_tree(sites, edges, costs, elev, root_idx, layout=plan.get("layout", "tree"),
                      allow_forest=plan.get("allow_forest", False), design=plan.get("design"),
                      certify=certify, node_order=node_order, terrain_surface=terrain_surface,
-                     sample_spacing_m=plan.get("sample_spacing_m"))
+                     sample_spacing_m=plan.get("sample_spacing_m"), system=plan.get("system"))
 
 
 def _tree_links(tree):
@@ -423,8 +423,10 @@ def _assemble(bench, sites, cands, costs, elev, plan, *, name, description):
     from .layout import _fmt_dataclass, assemble_layout
 
     system, layout_kind = plan.get("system"), plan.get("layout", "tree")
-    if layout_kind not in ("tree", "gravity"):
-        raise InputError(f"[tree] layout: must be 'tree' or 'gravity', got {layout_kind!r}")
+    from .layout import LAYOUTS
+    if layout_kind not in LAYOUTS:
+        raise InputError(f"[tree] layout: must be one of {', '.join(LAYOUTS)}, "
+                         f"got {layout_kind!r}")
     if system not in (None, "pressure", "gravity"):
         raise InputError(f"[design] system: must be 'pressure' or 'gravity', got {system!r}")
     roots = plan.get("roots")
