@@ -415,8 +415,11 @@ class RuleEstimate:
             ok = (mid / area <= s.velocity_max_mps) & (g <= budget)
             lo, hi = np.where(ok, mid, lo), np.where(ok, hi, mid)
         nom = cat.nominal_mm / 1000.0
-        trench = s.trench_cost_per_m3 * (nom + 2 * s.trench_side_clearance_m) * (
-            s.pressure_cover_m + nom + s.bedding_m)
+        width = nom + 2 * s.trench_side_clearance_m
+        depth = s.pressure_cover_m + nom + s.bedding_m
+        # trench per metre of main, priced as the design stage prices it (default surface)
+        trench = np.asarray(s.price_table().trench_cost(depth, width, 1.0, bedding_m=s.bedding_m),
+                            float)
         elev = np.nan_to_num(np.asarray(elevation_m, float))
         pmin = s.min_pressure_m if min_pressure_m is None else np.asarray(min_pressure_m, float)
         length = np.asarray(length_m, float)
