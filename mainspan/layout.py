@@ -337,7 +337,7 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
                 raster_crs=None, on_nodata="barrier", sample_spacing_m=None, weights=None,
                 candidates="delaunay", k=8, max_link_m=None, max_complete_nodes=5000,
                 roots=None, allow_forest=False, use_site_z=False, system=None, design=None,
-                layout="tree", progress=None, extra_run_info=None):
+                layout="tree", progress=None, extra_run_info=None, whole_cost=None):
     """Plan the cheapest network of mains over the ground for a set of sites.
 
     Parameters
@@ -388,6 +388,9 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
         ``progress(stage, done, total)``.
     extra_run_info : dict, optional
         Further ``key: value`` pairs for the ``run_info`` table.
+    whole_cost : WholeCostSettings or dict, optional
+        Limits of the ``"whole-cost"`` search (start α values, hops, designs
+        per pass, total designs); see :class:`mainspan.wholecost.WholeCostSettings`.
 
     Returns
     -------
@@ -461,7 +464,7 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
                                      allow_forest=allow_forest, design=design,
                                      node_order=getattr(cands, "node_order", None),
                                      terrain_surface=surf, sample_spacing_m=sample_spacing_m,
-                                     system=system)
+                                     system=system, whole_cost=whole_cost)
     say("tree", 1, 1)
     land_paths = land_cost if isinstance(land_cost, dict) else (
         {"land_cost": land_cost} if land_cost is not None else {})

@@ -23,10 +23,12 @@ The search
 2. **Link exchange.**  A move adds a candidate link (a, b) not in the tree and
    drops a tree link on the cycle it closes; the part cut off is re-hung through
    the new link and the path inside it turned round.  Every move of the
-   neighbourhood is *ranked* by a cheap estimate (below); the best-ranked ones are
-   then *priced by a full design* in rank order and the first that lowers the
-   whole-life cost without adding a failing check is taken.  Passes repeat until
-   no priced move lowers the cost or the evaluation budget is spent.
+   neighbourhood is *ranked* by a cheap estimate (below); the ``per_pass``
+   best-ranked ones are then *priced by a full design* in rank order, each on the
+   tree as it stands, and every one that lowers the whole-life cost without adding
+   a failing check is taken (a move an earlier one of the same pass made invalid
+   is skipped).  Passes repeat until a pass takes no move or the evaluation budget
+   is spent.
 
 The estimate prices a move in O(length of the cycle): pipes chosen by the rule
 (smallest catalog pipe within the velocity cap and head-loss budget) for the
@@ -729,6 +731,21 @@ def _rmax_py(table, n):
     return float(table[0, :n].max()) if n else 0.0
 
 
+def _valid_exchange(tree, edges, added, cut):
+    """Whether adding *added* and dropping the link above *cut* still gives a tree."""
+    if tree.parent[cut] < 0 or bool(np.any(tree.parent_edge == added)):
+        return False
+
+    def below(v):
+        while v >= 0:
+            if v == cut:
+                return True
+            v = int(tree.parent[v])
+        return False
+
+    return below(int(edges[added, 0])) != below(int(edges[added, 1]))
+
+
 def apply_exchange(parent, parent_edge, edges, added, cut):
     """The tree after adding link *added* and dropping the link above node *cut*.
 
@@ -800,22 +817,23 @@ def exchange_search(n, edges, weights, start, evaluate, est, *, settings=None,
         stats["moves_last_pass"] = int(d.size)
         rank = np.lexsort((c, a, d))[: s.per_pass]
         took = False
-        priced = 0
+        complete = True
         for k in rank:
             if used >= s.max_evaluations:
+                complete = False
                 break
+            if took and not _valid_exchange(tree, edges, int(a[k]), int(c[k])):
+                continue          # an earlier exchange of this pass changed that cycle
             par, pe = apply_exchange(tree.parent, tree.parent_edge, edges, int(a[k]), int(c[k]))
             cand = tree_from_parents(par, pe, tree.roots, weights)
             got = evaluate(cand)
             used += 1
-            priced += 1
             tol = 1e-9 * max(abs(score[1]), 1.0)
             if got[0] <= score[0] and got[1] < score[1] - tol:
                 tree, score, took = cand, got, True
                 stats["accepted"] += 1
-                break
         if not took:
-            stats["converged"] = priced == rank.size
+            stats["converged"] = complete
             break
     stats["evaluations"] = used
     return tree, score, stats
@@ -1068,8 +1086,8 @@ def search_run_info(search, design=None):
             f"alpha {search['start_alpha']:g}); a move adds a candidate link and drops a tree "
             f"link at most {s.max_hops} links from its ends on the cycle; each pass prices the "
             f"{s.per_pass} moves ranked best by a rule-sizing estimate with the full design and "
-            "takes the first that lowers the whole-life cost without adding a failing check; "
-            + ("no priced move lowered it" if search["converged"] else
+            "takes each that lowers the whole-life cost without adding a failing check; "
+            + ("in the last pass none of them lowered it" if search["converged"] else
                f"stopped at the budget of {s.max_evaluations} designs before convergence")),
         "whole_life_cost": f"{chosen:.3f}",
         "prim_whole_life_cost": f"{prim:.3f}",
