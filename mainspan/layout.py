@@ -289,7 +289,7 @@ def read_layout(path, *, suffix="") -> Layout:
         raise InputError(f"{path!r}: link refers to node {exc.args[0]!r} missing from "
                          f"nodes{suffix}; the file is damaged or not a mainspan layout") from None
     tables = {}
-    for name in ("quantities", "checks", "access_points"):
+    for name in ("quantities", "checks", "access_points", "fittings"):
         if f"{name}{suffix}" in names:
             t = read_table(path, f"{name}{suffix}")
             geom = getattr(t, "geometry", None) if "geometry" in t.columns else None
@@ -780,6 +780,12 @@ def _design(lay, system, design, tree):
         table = {"link_id": np.asarray(lay.links["link_id"])[np.asarray(ap["link"], np.int64)]}
         table.update({k: np.asarray(v) for k, v in ap.items() if k != "link"})
         lay.tables["access_points"] = table
+    fit = getattr(res, "fittings", None)
+    if fit and len(fit.get("x", ())):      # a point layer; link index -> link_id as for access points
+        table = {"type": np.asarray(fit["type"], object), "size_mm": np.asarray(fit["size_mm"], float),
+                 "link_id": np.asarray(lay.links["link_id"])[np.asarray(fit["link"], np.int64)]}
+        table.update({k: np.asarray(fit[k]) for k in ("chainage_m", "node", "x", "y")})
+        lay.tables["fittings"] = table
     lay.design = res
     lay.design_settings = design
 

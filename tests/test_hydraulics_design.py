@@ -62,7 +62,9 @@ def test_pressure_hand_solved_minimum_source_head():
     assert q["pipe_cost"][-1] == pytest.approx(10.0 * LEN.sum())
     # + the placeholder price table's bedding (45/m3 x 0.71 x 0.1) and reinstatement (4/m2 x 0.71); 1.11 m < 1.5 m: no shoring
     assert q["trench_cost"][-1] == pytest.approx((25.0 * 0.71 * 1.11 + 45.0 * 0.71 * 0.1 + 4.0 * 0.71) * LEN.sum())
-    assert r.summary["total_cost"] == pytest.approx(q["total_cost"][-1])
+    # the bill's TOTAL is the whole-life cost: capital (pipes, trench, fittings, pump station) + energy present value
+    assert r.summary["whole_life_cost"] == pytest.approx(q["total_cost"][-1])
+    assert r.summary["total_cost"] == pytest.approx(q["total_cost"][-1] - r.summary["energy_cost_pv"])
     assert r.caution == CAUTION and "licensed engineer" in CAUTION
 
 

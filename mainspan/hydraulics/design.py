@@ -46,11 +46,12 @@ invert.
 from __future__ import annotations
 
 from dataclasses import dataclass, field, fields, replace
+from statistics import NormalDist
 
 import numpy as np
 
 from ..errors import InputError
-from ..network import FLOW_FROM_TO, accumulate, design_flow_lps, rooted_network
+from ..network import FLOW_FROM_TO, accumulate, clement_flow_lps, design_flow_lps, rooted_network
 from ..prices import PriceTable, default_prices
 from .catalog import PipeCatalog, default_catalog
 from .friction import water_kinematic_viscosity_m2ps
@@ -58,7 +59,9 @@ from .gravity import MIN_SLOPE_TABLE_PCT
 from .basis import check_basis_settings, sanitary_flows, storm_flows
 from .gravity_design import design_gravity
 from .pressure import HEADLOSS_METHODS, hydraulic_grade, size_pressure
-from .quantities import bill_of_quantities, pipe_rows
+from .fittings import place_fittings
+from .pump import pump_duty
+from .quantities import Item, bill_of_quantities, pipe_rows
 
 __all__ = ["CAUTION", "SYSTEMS", "DesignSettings", "DesignResult", "design_network"]
 
@@ -141,6 +144,43 @@ class DesignSettings:
     access_spacing_m : float, default=120.0
         Maximum distance between access points (400 ft, same standard).
 
+    Pressure demand, pump and fittings
+    ----------------------------------
+    demand_model : {"continuous", "clement", "peaking"}, default="continuous"
+        How pressure-main design flows follow from the site demands:
+        ``continuous`` -- every site draws its demand at once (× the
+        ``peaking_factor``, 1 by default); ``clement`` -- on-demand
+        irrigation, the demand of each site is its hydrant's nominal
+        discharge and each link carries Clément's first formula over the
+        hydrants downstream (:func:`mainspan.network.clement_flow_lps`);
+        ``peaking`` -- water supply, the accumulated demand × a
+        ``peaking_factor`` that must then be > 1.
+    operating_probability : float or None, default=None
+        Clément's r, the share of time a hydrant is open; None:
+        ``hydrant_hours_per_day / network_hours_per_day``.
+    hydrant_hours_per_day : float, default=6.0
+        Hours a hydrant must run a day at peak demand (placeholder; from
+        the crop water need and the hydrant discharge).
+    network_hours_per_day : float, default=18.0
+        Hours a day the network is available (common practice, 16–22 h).
+    quality_of_operation : float, default=0.95
+        Probability that the design flow is not exceeded; U is its standard
+        normal quantile (0.95 -> 1.645).
+    pump_efficiency : float, default=0.75
+        Wire-to-water efficiency of pump and motor (common practice).
+    pump_sump_m : None, float or tuple of float, default=None
+        Water level the pump lifts from at each source, m above datum;
+        None: the ground at the source.
+    fitting_min_prominence_m : float, default=1.0
+        Smallest rise and fall around a high or low point for an air valve
+        or washout (common practice, no single source).
+    thrust_bend_angle_deg : float, default=11.25
+        Bends deflecting more get a thrust block (the smallest standard
+        bend; common practice).
+    max_service_pressure_m : float or None, default=None
+        Pressure head above which a pressure-reducing valve is placed;
+        None places none.
+
     Gravity design basis (see :mod:`mainspan.hydraulics.basis`)
     -----------------------------------------------------------
     gravity_basis : {"sanitary", "storm"}, default="sanitary"
@@ -195,6 +235,18 @@ class DesignSettings:
     storm_inlet_time_min: float = 10.0
     storm_min_velocity_mps: float = 0.9
     # --- end of the design basis ---
+    # --- pressure demand, pump and fittings (price11) ---
+    demand_model: str = "continuous"
+    operating_probability: float | None = None
+    hydrant_hours_per_day: float = 6.0
+    network_hours_per_day: float = 18.0
+    quality_of_operation: float = 0.95
+    pump_efficiency: float = 0.75
+    pump_sump_m: float | tuple | None = None
+    fitting_min_prominence_m: float = 1.0
+    thrust_bend_angle_deg: float = 11.25
+    max_service_pressure_m: float | None = None
+    # --- end of pressure demand, pump and fittings ---
 
     def price_table(self) -> PriceTable:
         """The prices in force: ``prices`` (or the defaults), with ``trench_cost_per_m3`` applied."""
@@ -205,6 +257,7 @@ class DesignSettings:
 
     def __post_init__(self):
         object.__setattr__(self, "idf", check_basis_settings(self))  # the design basis keys
+        _check_pressure_extras(self)  # demand model, pump and fittings keys
         rules = {
             "peaking_factor": ("> 0", "use 1.0 for no peaking"),
             "min_flow_lps": (">= 0", "use 0 for no floor"),
@@ -257,6 +310,41 @@ class DesignSettings:
                 raise InputError(f"design option '{name}' must be a PipeCatalog or None, got {type(cat).__name__}; use read_catalog(path)")
 
 
+#: Demand models of pressure mains (DesignSettings.demand_model).
+DEMAND_MODELS = ("continuous", "clement", "peaking")
+
+
+def _check_pressure_extras(s):
+    if s.demand_model not in DEMAND_MODELS:
+        raise InputError(f"design option 'demand_model' is {s.demand_model!r}; choose one of {', '.join(DEMAND_MODELS)}")
+    if s.demand_model == "peaking" and not (isinstance(s.peaking_factor, (int, float)) and s.peaking_factor > 1):
+        raise InputError(f"design option 'demand_model' is 'peaking' but 'peaking_factor' is {s.peaking_factor}; "
+                         "give the water-supply peaking factor (> 1), e.g. --design peaking_factor=2.5")
+    for name in ("hydrant_hours_per_day", "network_hours_per_day", "pump_efficiency"):
+        _check_number(name, getattr(s, name), "> 0", "give a positive number")
+    if s.hydrant_hours_per_day > s.network_hours_per_day or s.network_hours_per_day > 24:
+        raise InputError(f"design options 'hydrant_hours_per_day' ({s.hydrant_hours_per_day}) and 'network_hours_per_day' "
+                         f"({s.network_hours_per_day}) must satisfy 0 < hydrant <= network <= 24")
+    if s.operating_probability is not None:
+        _check_number("operating_probability", s.operating_probability, "> 0", "give r in (0, 1]")
+        if s.operating_probability > 1:
+            raise InputError(f"design option 'operating_probability' must be <= 1, got {s.operating_probability}; give r in (0, 1]")
+    q = s.quality_of_operation
+    _check_number("quality_of_operation", q, "> 0", "give a probability such as 0.95")
+    if not 0.5 <= q < 1:
+        raise InputError(f"design option 'quality_of_operation' must be in [0.5, 1), got {q}; use e.g. 0.95 (U = 1.645)")
+    if s.pump_efficiency > 1:
+        raise InputError(f"design option 'pump_efficiency' must be <= 1, got {s.pump_efficiency}; give a fraction such as 0.75")
+    _check_number("fitting_min_prominence_m", s.fitting_min_prominence_m, ">= 0", "give metres, e.g. 1.0")
+    _check_number("thrust_bend_angle_deg", s.thrust_bend_angle_deg, ">= 0", "give degrees, e.g. 11.25")
+    if s.max_service_pressure_m is not None:
+        _check_number("max_service_pressure_m", s.max_service_pressure_m, "> 0", "give metres of head, or None")
+    if s.pump_sump_m is not None:
+        v = np.atleast_1d(np.asarray(s.pump_sump_m, dtype=np.float64))
+        if v.ndim != 1 or not np.all(np.isfinite(v)):
+            raise InputError(f"design option 'pump_sump_m' must be a number or one per source, got {s.pump_sump_m!r}")
+
+
 def _check_number(name, value, rule, fix):
     try:
         x = float(value)
@@ -302,6 +390,12 @@ class DesignResult:
         kind (``failing_checks``), ``notes`` and the ``caution`` text.
     failures : list of str
         One line per failed check naming the link or node.
+    caution : str
+        The caution text.
+    fittings : dict of str to ndarray
+        Pressure only (empty arrays otherwise), one row per fitting
+        (:mod:`mainspan.hydraulics.fittings`): type, size_mm, x, y, link,
+        chainage_m, node.
     """
 
     system: str
@@ -312,6 +406,7 @@ class DesignResult:
     summary: dict
     failures: list = field(default_factory=list)
     caution: str = CAUTION
+    fittings: dict = field(default_factory=dict)
 
 
 def _float_array(name, value, shape, *, allow_nan=False, min_value=None, strict=False):
@@ -484,6 +579,19 @@ def design_network(
     off, st, gr = _oriented_profiles(net, plan, elev, profile_offsets, profile_station_m, profile_ground_m)
     accumulated = accumulate(net, demand)
     q_lps = design_flow_lps(accumulated, peaking_factor=s.peaking_factor, min_flow_lps=s.min_flow_lps)
+    # --- pressure demand model (price11): flow leaving each source, for the pump duty ---
+    src_flow = s.peaking_factor * np.bincount(net.root_of, weights=demand, minlength=n)[net.roots]
+    if system == "pressure" and s.demand_model == "clement":
+        r_op = (s.operating_probability if s.operating_probability is not None
+                else s.hydrant_hours_per_day / s.network_hours_per_day)
+        u_q = NormalDist().inv_cdf(s.quality_of_operation)
+        clem, src_flow = clement_flow_lps(net, demand, r_op, quality_u=u_q)
+        q_lps = design_flow_lps(clem, min_flow_lps=s.min_flow_lps)
+        notes.append(f"on-demand flows by Clément's first formula: r = {r_op:.3g}, U = {u_q:.3f} "
+                     f"({100 * s.quality_of_operation:g} % quality of operation)")
+    elif system == "gravity" and s.demand_model == "clement":
+        raise InputError("design option 'demand_model' 'clement' is for pressure mains; gravity flows follow 'gravity_basis'")
+    # --- end of the pressure demand model ---
     basis = None
     if system == "gravity":   # --- the design basis (mainspan.hydraulics.basis) ---
         if s.gravity_basis == "storm":
@@ -647,6 +755,13 @@ def design_network(
     links["checks"] = _checks(L, flags_l)
     nodes["checks"] = _checks(n, flags_n)
     bill_items = []          # priced rows beyond the pipes: quantities.Item(category, item, unit, quantity, unit_cost)
+    fittings = {k: np.zeros(0) for k in ("size_mm", "x", "y", "chainage_m")}
+    fittings.update(type=np.zeros(0, object), link=np.zeros(0, np.int64), node=np.zeros(0, object))
+    energy_pv = 0.0
+    if system == "pressure":   # --- pump duty and fittings (price11) ---
+        fittings, energy_pv = _pressure_extras(s, prices, net, xy, elev, plan, off, st, gr, links, summary,
+                                               src_flow, ids, bill_items)
+    # --- end of pump duty and fittings ---
     quantities = bill_of_quantities(pipe_rows(cat_used, pipe, pipe_len, pipe_cost, trench_cost, land), bill_items)
     failures = []
     for kind, i, check, text in sorted(details, key=lambda t: (t[0] != "link", t[1], t[2])):
@@ -664,8 +779,8 @@ def design_network(
         trench_cost=float(trench_cost.sum()),
         land_cost=float(land.sum()),
         trench_breakdown={k: float(v.sum()) for k, v in trench_parts.items()},
-        total_cost=float(quantities["total_cost"][-1]),
-        energy_cost_pv=0.0,
+        total_cost=float(quantities["total_cost"][-1]) - energy_pv,
+        energy_cost_pv=energy_pv,
         whole_life_cost=float(quantities["total_cost"][-1]),
         prices=prices.describe(),
         failing_checks=counts,
@@ -674,7 +789,7 @@ def design_network(
         caution=CAUTION,
     )
     return DesignResult(system=system, link_fields=links, node_fields=nodes, quantities=quantities,
-                        access_points=access, summary=summary, failures=failures)
+                        access_points=access, summary=summary, failures=failures, fittings=fittings)
 
 
 def _checks(size, flags):
@@ -684,3 +799,49 @@ def _checks(size, flags):
         out[m] = np.where(out[m] == "", name, out[m] + ";" + name)
     out[out == ""] = "ok"
     return out
+
+
+def _pressure_extras(s, prices, net, xy, elev, plan, off, st, gr, links, summary, src_flow, ids, items):
+    """Pump duty and fittings of a pressure design; appends their priced rows to *items*.
+
+    Returns the fittings table and the present value of the pumping energy.
+    """
+    root_hgl = np.asarray(summary["source_hgl_m"], float)
+    sump = elev[net.roots] if s.pump_sump_m is None else np.broadcast_to(
+        np.asarray(s.pump_sump_m, float), net.roots.shape)
+    if sump.shape != net.roots.shape:
+        raise InputError(f"design option 'pump_sump_m' has {np.size(s.pump_sump_m)} values for {net.roots.size} sources; "
+                         "give one, or one per source")
+    duty = pump_duty(src_flow, root_hgl, sump, prices, efficiency=s.pump_efficiency)
+    for j in np.flatnonzero(duty["shaft_kw"] > 0):
+        items.append(Item("pump station", f"pump station {duty['shaft_kw'][j]:.1f} kW", "each", 1.0,
+                          float(duty["station_cost"][j])))
+    annual = float(duty["annual_kwh"].sum())
+    if annual > 0:
+        items.append(Item("energy (present value)", f"pumping energy, {prices.years:g} years at "
+                          f"{100 * prices.discount_rate:g} %", "kWh/a", annual, prices.energy_per_kwh * prices.pv_factor))
+    one = net.roots.size == 1
+    pump = {k: (float(v[0]) if one else v.tolist()) for k, v in duty.items()}
+    pump["efficiency"] = s.pump_efficiency
+    summary["pump"] = pump
+    summary["pump_duty"] = "; ".join(
+        f"{str(ids[r])}: {duty['flow_lps'][j]:.2f} L/s at {duty['head_m'][j]:.1f} m, {duty['hydraulic_kw'][j]:.1f} kW "
+        f"hydraulic, {duty['shaft_kw'][j]:.1f} kW shaft (η {s.pump_efficiency:g}), {duty['annual_kwh'][j]:,.0f} kWh/a"
+        for j, r in enumerate(net.roots))
+    # pressure head along every profile, for the PRVs
+    plink = np.repeat(np.arange(net.n_links), np.diff(off))
+    frac = np.where(plan[plink] > 0, st / np.where(plan[plink] > 0, plan[plink], 1.0), 0.0)
+    p_s = links["hgl_from_m"][plink] - links["headloss_m"][plink] * frac - gr
+    p_max = np.maximum.reduceat(p_s, off[:-1]) if net.n_links else np.zeros(0)
+    fit = place_fittings(net, xy, plan, off, st, gr, links["nominal_mm"], links["design_flow_lps"],
+                         cover_m=s.pressure_cover_m, min_prominence_m=s.fitting_min_prominence_m,
+                         bend_angle_deg=s.thrust_bend_angle_deg, max_service_pressure_m=s.max_service_pressure_m,
+                         pressure_max_m=p_max, node_id=ids)
+    kinds, sizes = fit["type"].astype(str), fit["size_mm"]
+    for kind, size in sorted(set(zip(kinds.tolist(), sizes.tolist()))):
+        cnt = int(np.sum((kinds == kind) & (sizes == size)))
+        items.append(Item("fitting", f"{kind.replace('_', ' ')} {size:g} mm", "each", float(cnt),
+                          float(prices.fitting_cost(kind, size)), float(size)))
+    summary["fittings"] = {k: int(np.sum(kinds == k)) for k in ("air_valve", "washout", "isolation_valve",
+                                                                 "thrust_block", "prv")}
+    return fit, float(duty["energy_cost_pv"].sum())

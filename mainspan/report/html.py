@@ -158,7 +158,7 @@ def _summary(layout):
     if q:
         body = ~total_rows(q)
         for col in ("pipe_cost", "trench_cost", "land_cost", "total_cost"):
-            if col in q:
+            if col in q and not (col == "total_cost" and info.get("design:whole_life_cost")):
                 v = float(np.nansum(np.asarray(q[col], float)[body]))
                 pairs.append((col.replace("_", " "), _e(f"{v:,.2f}")))
     else:
@@ -167,6 +167,16 @@ def _summary(layout):
                 pairs.append((col.replace("_", " "), _e(f"{layout.total(col):,.2f}")))
             elif col in ("climb_m", "descent_m"):
                 pairs.append((f"total {col[:-2]}", _e(f"{layout.total(col):,.1f} m")))
+    for key, label in (("design:total_cost", "capital cost"), ("design:energy_cost_pv", "energy cost (present value)"),
+                       ("design:whole_life_cost", "whole-life cost"), ("design:pump_duty", "pump duty"),
+                       ("design:fittings", "fittings"), ("design:prices", "prices")):
+        if info.get(key):           # pump, fittings and prices (mainspan.prices): placeholders are flagged
+            v = info[key]
+            try:
+                v = f"{float(v):,.2f}"
+            except ValueError:
+                v = v.strip("{}").replace("'", "").replace(": ", " ")
+            pairs.append((label, _e(v)))
     if "checks" in lk:
         nf = int(_failed(lk["checks"]).sum())
         nfn = int(_failed(nd["checks"]).sum()) if "checks" in nd else 0
