@@ -23,8 +23,9 @@ def test_scale_factor_on_central_meridian_and_at_600km():
     # NGA.SIG.0012: k0 = 0.9996 on the central meridian (false easting 500 000 m)
     kmin, kmax = scale_factor_range(np.array([[500000.0, 5100000.0]]), "EPSG:32633")
     assert kmin == pytest.approx(0.9996, abs=1e-9)
-    # REFERENCES.md worked value, sphere formula after Snyder (USGS PP 1395, ch. 8, from
-    # memory): E = 600 000 m -> k = 0.99972324.  pyproj's ellipsoidal factor differs from
+    # computed by hand from the sphere formula k = k0 (1 + x^2 / (2 k0^2 R^2)), Snyder, Map
+    # Projections: A Working Manual, USGS PP 1395, 1987, ch. 8 (from memory), R 6 371 000 m:
+    # E = 600 000 m -> k = 0.99972324.  pyproj's ellipsoidal factor differs from
     # the spherical approximation by a few 1e-7 at mid latitudes.
     kmin, _ = scale_factor_range(np.array([[600000.0, 5100000.0]]), "EPSG:32633")
     assert kmin == pytest.approx(0.99972324, abs=1e-6)

@@ -8,7 +8,7 @@ import pytest
 from mainspan.errors import DataFileError, InputError
 from mainspan.hydraulics.catalog import PipeCatalog, default_catalog, default_gravity_catalog, read_catalog
 
-# ISO 4427-2 / EN 12201-2, PE100 SDR11: OD -> minimum wall (REFERENCES.md, pub)
+# ISO 4427-2:2019 / EN 12201-2, PE100 SDR11: OD -> minimum wall (table of the standard)
 PE_SDR11 = {32: 3.0, 40: 3.7, 50: 4.6, 63: 5.8, 75: 6.8, 90: 8.2, 110: 10.0, 125: 11.4,
             140: 12.7, 160: 14.6, 200: 18.2, 250: 22.7, 315: 28.6, 400: 36.3}
 
@@ -20,7 +20,8 @@ def test_default_catalog_dimensions_and_rating():
     # SDR = OD / wall ≈ 11 for every size (the series definition, ISO 4065; walls are rounded
     # up to 0.1 mm, so 32 mm is 10.7)
     np.testing.assert_allclose(cat.nominal_mm / ((cat.nominal_mm - cat.inner_mm) / 2), 11.0, rtol=0.035)
-    # PN = 20 MRS / (C (SDR - 1)) = 20 * 10 / (1.25 * 10) = 16 bar (REFERENCES.md, pub) -> head
+    # PN = 20 MRS / (C (SDR - 1)) = 20 * 10 / (1.25 * 10) = 16 bar (ISO 4427-1 / ISO 12162 design
+    # stress MRS/C; from memory) -> head
     pn = 20 * 10.0 / (1.25 * (11 - 1))
     np.testing.assert_allclose(cat.rating_m, pn * 1e5 / (1000 * 9.80665))
     assert np.all(cat.hw_c == 150)  # NRCS practice standard 430: plastic pipe C = 150

@@ -28,7 +28,7 @@ from mainspan.hydraulics.gravity import (
 
 # Hazen–Williams SI, h = 10.67 L Q^1.852 / (C^1.852 D^4.87); Williams & Hazen,
 # Hydraulic Tables 1920 (constant from memory; published constants range
-# 10.59–10.70, hence 0.5 %).  Worked values: REFERENCES.md (calc).
+# 10.59–10.70, hence 0.5 %).  Worked values computed by hand from that formula.
 @pytest.mark.parametrize(
     "q, d, length, c, expected",
     [
@@ -44,13 +44,14 @@ def test_hazen_williams_worked_values(q, d, length, c, expected):
 
 def test_colebrook_published_value():
     # Re 1e5, eps/D 1e-4 -> 0.0185139, value printed in the fluids documentation
-    # of fluids.friction.Colebrook (REFERENCES.md, pub)
+    # of fluids.friction.Colebrook (C. F. White's Colebrook 1939 equation, fluids docs)
     assert colebrook_friction(1e5, 1e-4) == pytest.approx(0.0185139, abs=5e-8)
 
 
 def test_colebrook_worked_pipe():
     # D 0.2 m, Q 0.05 m3/s, eps 0.26 mm, nu 1.004e-6, L 1000 m -> f 0.021722,
-    # h_f 14.03 m (REFERENCES.md, calc from Colebrook 1939 and Darcy–Weisbach)
+    # h_f 14.03 m (computed by hand from Colebrook, J. Inst. Civ. Eng. 11:133, 1939, and
+    # Darcy–Weisbach h_f = f L/D V^2/(2g))
     v = 0.05 / (np.pi * 0.2**2 / 4)
     re = v * 0.2 / 1.004e-6
     assert colebrook_friction(re, 0.26e-3 / 0.2) == pytest.approx(0.021722, abs=1e-6)
@@ -95,9 +96,10 @@ def test_laminar_below_2000_and_zero_flow():
 
 @pytest.mark.parametrize(
     "t, nu",
-    # tabulated kinematic viscosity of water (e.g. White, Fluid Mechanics, table A.1;
-    # 20 and 10 °C also in the brief) -- from memory
-    [(0.0, 1.787e-6), (10.0, 1.306e-6), (20.0, 1.004e-6), (30.0, 0.801e-6), (40.0, 0.658e-6)],
+    # tabulated kinematic viscosity of water (e.g. White, Fluid Mechanics, table A.1) -- from
+    # memory; 20 °C: dynamic viscosity 1.0016 mPa s (ISO/TR 3666:1998, from memory) over
+    # density 998.21 kg/m3 gives 1.0034e-6 m2/s; our correlation (1978) gives 1.0038e-6
+    [(0.0, 1.787e-6), (10.0, 1.306e-6), (20.0, 1.0034e-6), (30.0, 0.801e-6), (40.0, 0.658e-6)],
 )
 def test_viscosity_matches_tables(t, nu):
     assert water_kinematic_viscosity_m2ps(t) == pytest.approx(nu, rel=0.005)
@@ -111,30 +113,44 @@ def test_density_matches_tables():
 
 
 def test_manning_full_pipe_worked_value():
-    # D 0.300, S 0.005, n 0.013 -> V 0.967 m/s, Q 0.0684 m3/s (REFERENCES.md, calc from Manning 1891)
+    # D 0.300, S 0.005, n 0.013 -> V 0.967 m/s, Q 0.0684 m3/s (computed by hand from Manning,
+    # Trans. Inst. Civ. Eng. Ireland 20:161, 1891: V = R^(2/3) S^(1/2) / n, R = D/4)
     v, q = full_pipe(0.300, 0.005, 0.013)
     assert v == pytest.approx(0.967, abs=5e-4)
     assert q == pytest.approx(0.0684, abs=5e-5)
 
 
 def test_manning_part_full_matches_fluids():
-    # independent reference: fluids.open_flow.V_Manning(Rh, S, n) with our part-full section
+    # independent reference: the circular-segment geometry written out here (any hydraulics
+    # text: theta = 2 arccos(1 - 2 y/D), A = D^2 (theta - sin theta) / 8, P = theta D / 2) and
+    # fluids.open_flow.V_Manning(Rh, S, n) for the velocity
     d, s, n = 0.45, 0.002, 0.013
-    for yd in (0.1, 0.25, 0.5, 0.75, 0.9):
-        area, perim, theta = part_full_section(yd, d)
-        # geometry check against the circular-segment formula written out directly
-        r = d / 2
-        seg = r * r * np.arccos((r - yd * d) / r) - (r - yd * d) * np.sqrt(2 * r * yd * d - (yd * d) ** 2)
-        assert area == pytest.approx(seg, rel=1e-12)
-        v_ref = fluids.open_flow.V_Manning(area / perim, s, n)
-        q_ref = v_ref * area
+    for yd in (0.05, 0.1, 0.25, 0.5, 0.75, 0.9, 0.99):
+        theta = 2 * np.arccos(1 - 2 * yd)
+        a_ref = d * d * (theta - np.sin(theta)) / 8
+        p_ref = theta * d / 2
+        area, perim, th = part_full_section(yd, d)
+        assert th == pytest.approx(theta, rel=1e-12)
+        assert area == pytest.approx(a_ref, rel=1e-12)
+        assert perim == pytest.approx(p_ref, rel=1e-12)
+        # and the segment area a second way: sector minus triangle, r^2 acos(.) - (r-y) chord/2
+        r, y = d / 2, yd * d
+        seg = r * r * np.arccos((r - y) / r) - (r - y) * np.sqrt(2 * r * y - y * y)
+        assert a_ref == pytest.approx(seg, rel=1e-12)
+        v_ref = fluids.open_flow.V_Manning(a_ref / p_ref, s, n)
+        q_ref = v_ref * a_ref
+        q_full_ref = fluids.open_flow.V_Manning(d / 4, s, n) * np.pi * d * d / 4
         _, qf = full_pipe(d, s, n)
+        assert qf == pytest.approx(q_full_ref, rel=1e-12)
         assert part_full_ratio(yd) * qf == pytest.approx(q_ref, rel=1e-12)
-        assert depth_ratio_for_flow(q_ref, d, s, n) == pytest.approx(yd, abs=1e-9)
+        if yd < 0.938:    # below the flow peak the depth for a flow is unique
+            assert depth_ratio_for_flow(q_ref, d, s, n) == pytest.approx(yd, abs=1e-9)
 
 
 def test_part_full_peak():
-    # peak part-full flow at y/D ≈ 0.938, 1.076 x full flow (REFERENCES.md, calc; standard result)
+    # peak part-full flow at y/D ≈ 0.938, 1.076 x full flow (the standard textbook result for
+    # Manning with constant n in a circular pipe, e.g. Chow, Open-Channel Hydraulics, 1959;
+    # from memory)
     y, r = max_flow_depth_ratio()
     assert y == pytest.approx(0.938, abs=5e-4)
     assert r == pytest.approx(1.076, abs=5e-4)

@@ -120,12 +120,17 @@ def test_pressure_rules_hold(seed):
     q = lf["design_flow_lps"] / 1000
     v = q / (np.pi * d * d / 4)
     np.testing.assert_allclose(lf["velocity_mps"], v)
-    nu = r.summary["kinematic_viscosity_m2ps"]
+    # water at 20 °C (the default): 1.0016 mPa s (ISO/TR 3666:1998) / 998.21 kg/m3
+    # = 1.0034e-6 m2/s (from memory); the 1978 correlation used by mainspan gives 1.0038e-6
+    nu = 1.0034e-6
+    assert r.summary["kinematic_viscosity_m2ps"] == pytest.approx(nu, rel=1e-3)
     re = v * d / nu
     # laminar 64/Re below Re 2000 (the documented switch), Colebrook above
     f = np.array([64 / rr if rr < 2000 else fluids.friction.Colebrook(rr, 0.007e-3 / dd) for rr, dd in zip(re, d)])
     hl = 1.1 * f * (case["surface_length_m"] / d) * v * v / (2 * 9.80665)
-    np.testing.assert_allclose(lf["headloss_m"], hl, rtol=1e-9)
+    # 0.04 % in viscosity moves a laminar friction factor (64 nu / V D) by 0.04 % and a
+    # turbulent one by less
+    np.testing.assert_allclose(lf["headloss_m"], hl, rtol=5e-4)
     ok = lf["checks"] != "no_pipe"
     assert np.all(v[ok] <= 1.5 + 1e-12)
     assert np.all((hl / case["surface_length_m"] * 1000)[ok] <= 10.0 + 1e-9)

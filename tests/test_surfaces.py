@@ -39,7 +39,7 @@ def write_raster(path, data, *, transform, crs=UTM33, nodata=None, blocksize=Non
 
 def test_traversal_hand_case():
     # Amanatides & Woo 1987 traversal; the visiting order (0,0),(1,0),(1,1),(2,1) in (x, y)
-    # is the REFERENCES.md hand case (calc).  Here cells are (row=y, col=x).
+    # is worked by hand from the algorithm in the paper.  Here cells are (row=y, col=x).
     off, r, c, L, out = traverse_grid([0.5], [0.5], [2.5], [1.5], 3, 2)
     assert list(zip(c.tolist(), r.tolist())) == [(0, 0), (1, 0), (1, 1), (2, 1)]
     # boundaries at t = 1/4, 1/2, 3/4 of sqrt(5): four equal pieces (calc)
