@@ -38,6 +38,21 @@ def delaunay_edges(xy):
     return np.unique(e, axis=0).astype(np.int64)
 
 
+def shapely_integral(values, p0, p1, *, x0=X0, y1=Y1, cell=CELL):
+    """Line integral of a north-up grid by shapely: the length of each straight segment inside
+    each cell polygon (GEOS intersection) times the cell value.  Independent of mainspan's
+    grid traversal."""
+    nr, nc = values.shape
+    cols, rows = np.meshgrid(np.arange(nc), np.arange(nr))
+    cols, rows = cols.ravel(), rows.ravel()
+    boxes = shapely.box(x0 + cols * cell, y1 - (rows + 1) * cell,
+                        x0 + (cols + 1) * cell, y1 - rows * cell)
+    lines = shapely.linestrings(np.stack([p0, p1], axis=1))
+    li, bi = shapely.STRtree(boxes).query(lines)
+    piece = shapely.length(shapely.intersection(lines[li], boxes[bi]))
+    return np.bincount(li, weights=piece * values.ravel()[bi], minlength=len(lines))
+
+
 @pytest.fixture
 def plane(tmp_path):
     """z = a x + b y + c on a 200 x 200 grid of 10 m cells (float64, exact)."""
@@ -96,13 +111,14 @@ def test_land_cost_sum_of_named_rasters(tmp_path):
     e = delaunay_edges(xy)
     lc = price_links(xy, e, working_crs=UTM33, land_cost={"base": p1, "band": p2},
                      weights=CostWeights(length=0.0, land=2.0))
-    with open_surface(p1, working_crs=UTM33) as s1, open_surface(p2, working_crs=UTM33) as s2:
-        i1 = s1.line_integral(xy[e[:, 0]], xy[e[:, 1]])[0]
-        i2 = s2.line_integral(xy[e[:, 0]], xy[e[:, 1]])[0]
-    np.testing.assert_allclose(lc.components["land_cost_base"], i1, rtol=1e-12)
-    np.testing.assert_allclose(lc.components["land_cost_band"], i2, rtol=1e-12)
-    np.testing.assert_allclose(lc.components["land_cost"], i1 + i2, rtol=1e-12)
-    np.testing.assert_allclose(lc.total, 2.0 * (i1 + i2), rtol=1e-12)
+    # reference: GEOS intersections of each link with the cell polygons (shapely); exact but
+    # for rounding, so 1e-9 relative
+    i1 = shapely_integral(v1, xy[e[:, 0]], xy[e[:, 1]])
+    i2 = shapely_integral(v2, xy[e[:, 0]], xy[e[:, 1]])
+    np.testing.assert_allclose(lc.components["land_cost_base"], i1, rtol=1e-9)
+    np.testing.assert_allclose(lc.components["land_cost_band"], i2, rtol=1e-9, atol=1e-6)
+    np.testing.assert_allclose(lc.components["land_cost"], i1 + i2, rtol=1e-9)
+    np.testing.assert_allclose(lc.total, 2.0 * (i1 + i2), rtol=1e-9)
     # band cost: 200 x length of the link inside the band rows, measured with shapely
     band = shapely.box(X0, Y1 - 1200, X0 + 2000, Y1 - 800)
     lines = shapely.linestrings(np.stack([xy[e[:, 0]], xy[e[:, 1]]], axis=1))
@@ -125,12 +141,11 @@ def test_cost_expression_and_class_table(tmp_path):
     p0, p1 = xy[e[:, 0]], xy[e[:, 1]]
     lc = price_links(xy, e, working_crs=UTM33, land_cost={"base": pb, "use": pu},
                      cost_expression="max(base, 45) + where(use == 3, 100, 0)")
-    # independent: build the per-cell cost raster with numpy, integrate it with the traversal
+    # independent: build the per-cell cost raster with numpy, integrate it with shapely
+    # intersections of each link with the cell polygons (GEOS)
     combined = np.maximum(base, 45) + np.where(use == 3, 100, 0)
-    pc = write_raster(tmp_path / "combined.tif", combined)
-    with open_surface(pc, working_crs=UTM33) as s:
-        ref = s.line_integral(p0, p1)[0]
-    np.testing.assert_allclose(lc.components["land_cost"], ref, rtol=1e-12)
+    ref = shapely_integral(combined, p0, p1)
+    np.testing.assert_allclose(lc.components["land_cost"], ref, rtol=1e-9)
     # class table on the class raster alone
     table = {1: 40.0, 2: 90.0, 3: 250.0}
     lc2 = price_links(xy, e, working_crs=UTM33, land_cost=pu, class_costs=table)
@@ -278,18 +293,53 @@ def test_real_dem_reprojected_gives_the_same_costs(tmp_path):
     L = A.components["length_m"]
     np.testing.assert_allclose(B.components["length_m"], L)
     a, b = A.components, B.components
-    # 3D length: slopes differ a little, lengths hardly (within 2 % per link, 0.1 % in total)
-    np.testing.assert_allclose(b["surface_length_m"], a["surface_length_m"], rtol=0.02)
-    assert b["surface_length_m"].sum() == pytest.approx(a["surface_length_m"].sum(), rel=1e-3)
-    # elevation integrated as a "land cost": the mean elevation along a link agrees to a
-    # median of 10 m and at worst 200 m on the shortest links, which cross only a few 2.4 km
-    # cells (relief here spans 3600 m); totals within 1 %
-    mean_diff = np.abs(b["land_cost"] - a["land_cost"]) / L
-    assert np.median(mean_diff) <= 10.0 and mean_diff.max() <= 200.0
+    # Each side exactly against an independent profile: stations evenly spaced along the
+    # straight UTM link, ceil(L / 500 m) intervals (the documented sampling), taken to the
+    # raster CRS by pyproj and interpolated bilinearly between cell centres by scipy's
+    # RegularGridInterpolator.  Same stations and same surface, so only rounding differs.
+    from scipy.interpolate import RegularGridInterpolator
+
+    to_geo = pyproj.Transformer.from_crs(utm, "EPSG:4326", always_xy=True)
+    # cell centres of the written (regular) grid; the npz's own axes are slightly uneven
+    lat_c = lat[0] + np.arange(len(lat)) * dlat
+    lon_c = lon[0] + np.arange(len(lon)) * dlon
+    geo_interp = RegularGridInterpolator((lat_c, lon_c), topo)
+    with rasterio.open(proj) as src:
+        zu = src.read(1)
+        cx = tr.c + (np.arange(zu.shape[1]) + 0.5) * tr.a
+        cy = tr.f + (np.arange(zu.shape[0]) + 0.5) * tr.e
+    utm_interp = RegularGridInterpolator((cy[::-1], cx), zu[::-1])
+
+    def profile_stats(zfun):
+        out = {k: np.empty(len(e)) for k in ("surface_length_m", "climb_m", "z_from_m")}
+        for k, (i, j) in enumerate(e):
+            n = max(1, math.ceil(L[k] / 500.0))
+            f = np.arange(n + 1) / n
+            pts = xy[i] + f[:, None] * (xy[j] - xy[i])
+            z = zfun(pts)
+            dz = np.diff(z)
+            out["surface_length_m"][k] = np.sum(np.hypot(L[k] / n, dz))
+            out["climb_m"][k] = dz[dz > 0].sum()
+            out["z_from_m"][k] = z[0]
+        return out
+
+    ra = profile_stats(lambda p: geo_interp(np.column_stack(to_geo.transform(*p.T))[:, ::-1]))
+    rb = profile_stats(lambda p: utm_interp(p[:, ::-1]))
+    for key in ("surface_length_m", "climb_m", "z_from_m"):
+        np.testing.assert_allclose(a[key], ra[key], rtol=1e-9, atol=1e-6, err_msg=key)
+        np.testing.assert_allclose(b[key], rb[key], rtol=1e-9, atol=1e-6, err_msg=key)
+    # the UTM copy's land-cost integral exactly by shapely cell intersections (straight links in
+    # the raster's own CRS)
+    vals = np.where(zu == -9999.0, 0.0, zu)
+    ref_b = shapely_integral(vals, xy[e[:, 0]], xy[e[:, 1]], x0=tr.c, y1=tr.f, cell=tr.a)
+    np.testing.assert_allclose(b["land_cost"], ref_b, rtol=1e-9)
+    # Between the two rasters there is no exact relation (the copy's cells hold bilinear values
+    # of the original at 1 km centres, and bilinear-of-bilinear flattens peaks), so the exact
+    # checks above carry the test; the totals are a sanity check of the reprojection with
+    # limits a little above what was measured when this was written (land cost -0.40 %,
+    # climb -6.1 %: the copy is smoother, so it climbs less, never more)
     assert b["land_cost"].sum() == pytest.approx(a["land_cost"].sum(), rel=1e-2)
-    # end elevations within 60 m, climb totals within 10 % (peaks flattened by resampling)
-    assert np.abs(b["z_from_m"] - a["z_from_m"]).max() <= 60.0
-    assert b["climb_m"].sum() == pytest.approx(a["climb_m"].sum(), rel=0.10)
+    assert 0.90 * a["climb_m"].sum() <= b["climb_m"].sum() <= a["climb_m"].sum()
     assert np.corrcoef(a["climb_m"], b["climb_m"])[0, 1] > 0.99
 
 
