@@ -60,8 +60,25 @@ def test_nodata_policies(scene, capsys):
     import pyogrio
     barrier = pyogrio.read_dataframe(scene["out"], layer="links")
     assert (barrier.nodata_fraction == 0).all()
+    assert not any(
+        {f, t} == {"B", "E"} for f, t in zip(barrier.from_node, barrier.to_node))
     code, out, err = run_cli(base + ["--on-nodata", "skip"], capsys)
     assert code == 0, err
+    # skip: the gap costs nothing, so B-E (800 m straight through the 100 m hole) is now the
+    # cheapest link between the rows and joins the tree; its land cost is 10/m over the part
+    # outside the hole, measured with shapely (GEOS) against the hole's cell polygon
+    import shapely
+    skip = pyogrio.read_dataframe(scene["out"], layer="links")
+    be = [k for k, (f, t) in enumerate(zip(skip.from_node, skip.to_node)) if {f, t} == {"B", "E"}]
+    assert len(be) == 1
+    hole = shapely.box(X0 + 450, Y0 - 550, X0 + 550, Y0 - 450)
+    for k, g in enumerate(skip.geometry):
+        line = shapely.force_2d(g)
+        inside = shapely.length(shapely.intersection(line, hole))
+        assert skip.nodata_fraction[k] == pytest.approx(inside / line.length, abs=1e-12)
+        assert skip.land_cost[k] == pytest.approx(10.0 * (line.length - inside), rel=1e-9)
+    assert skip.nodata_fraction[be[0]] == pytest.approx(100.0 / 800.0)
+    assert skip.land_cost.sum() < barrier.land_cost.sum()
     code, out, err = run_cli(base + ["--on-nodata", "error"], capsys)
     assert code == 2 and "link" in err and "hole.tif" in err and "sites " in err
 
@@ -98,13 +115,35 @@ def test_raster_in_another_crs_gives_same_costs(scene, capsys):
 
 
 def test_raster_without_crs_needs_raster_crs(scene, capsys):
-    nocrs = write_raster(scene["tmp"] / "nocrs.tif", np.full((100, 100), 5.0), crs=None)
+    # a land-cost raster rising 1 per column, with no CRS in the file
+    yy, xx = np.mgrid[0:100, 0:100]
+    values = 1.0 + xx + 0.5 * yy
+    # shifted half a cell so that no link runs along a cell edge (where the cell is ambiguous)
+    x0, y0 = X0 - 5.0, Y0 + 5.0
+    nocrs = write_raster(scene["tmp"] / "nocrs.tif", values, crs=None, x0=x0, y0=y0)
     code, out, err = run_cli(["plan", "--sites", scene["sites"], "--land-cost", nocrs,
                               "--out", scene["out"]], capsys)
     assert code == 2 and "--raster-crs" in err and "nocrs.tif" in err
     code, out, err = run_cli(["plan", "--sites", scene["sites"], "--land-cost", nocrs,
                               "--raster-crs", "EPSG:32633", "--out", scene["out"]], capsys)
     assert code == 0, err
+    # the option places the grid in UTM 33N: each link's land cost is the sum over the cells it
+    # crosses of (length in cell) x value, measured with shapely (GEOS) on the cell polygons
+    import pyogrio
+    import shapely
+    links = pyogrio.read_dataframe(scene["out"], layer="links")
+    cols, rows = xx.ravel(), yy.ravel()
+    cells = shapely.box(x0 + 10.0 * cols, y0 - 10.0 * (rows + 1), x0 + 10.0 * (cols + 1),
+                        y0 - 10.0 * rows)
+    for g, cost in zip(links.geometry, links.land_cost):
+        line = shapely.force_2d(g)
+        ref = np.sum(shapely.length(shapely.intersection(line, cells)) * values.ravel())
+        assert cost == pytest.approx(ref, rel=1e-9)
+    # the same raster read as if it were in another CRS (EPSG:3035) no longer covers the sites
+    code, out, err = run_cli(["plan", "--sites", scene["sites"], "--land-cost", nocrs,
+                              "--raster-crs", "EPSG:3035", "--out", scene["out"],
+                              "--overwrite"], capsys)
+    assert code != 0
 
 
 def test_check_reports_coverage(scene, capsys):
