@@ -2,9 +2,11 @@
 
 Two invented scenarios ship with the package (``mainspan.sample_data``):
 the Kestrel Flats irrigation scheme (pressure mains from a pump station to
-about 150 field hydrants) and the Harrow Brook drainage catchment (gravity
-mains from 60 inlets to one outlet), both on the same generated terrain and
-land-cost rasters.
+about 150 field hydrants) and the Harrow Brook storm drainage catchment
+(gravity mains from 60 inlets to one outlet, designed by the Rational method
+from invented catchment areas, runoff coefficients and an invented rainfall
+table, laid out by the depth-aware arborescence), both on the same
+generated terrain and land-cost rasters.
 """
 
 from __future__ import annotations
@@ -67,7 +69,7 @@ def run_demo(outdir, *, overwrite=False, quiet=False, write_extras=True):
     outdir = os.fspath(outdir)
     outputs = ["kestrel_layout.gpkg", "kestrel_report.html", "kestrel_layout.dxf",
                "kestrel_layout.xml", "kestrel_long_section.png", "harrow_layout.gpkg",
-               "harrow_report.html", "harrow_long_section.png"]
+               "harrow_report.html", "harrow_long_section.png", "harrow_layout.xml"]
     if os.path.isdir(outdir) and not overwrite:
         clash = [o for o in outputs if os.path.exists(os.path.join(outdir, o))]
         if clash:
@@ -98,11 +100,12 @@ def run_demo(outdir, *, overwrite=False, quiet=False, write_extras=True):
     _print_design(ground)
 
     print()
-    print("Harrow Brook drainage catchment (gravity mains, invented demo)")
+    print("Harrow Brook storm drainage catchment (gravity mains, Rational method, invented demo)")
     drain = plan(files["harrow.toml"])
     h_gpkg = os.path.join(outdir, "harrow_layout.gpkg")
     drain.write_gpkg(h_gpkg, overwrite=overwrite)
     print(drain.summary())
+    print(_depth_aware_gain(drain))
     _print_design(drain)
 
     written = [k_gpkg, h_gpkg]
@@ -121,9 +124,10 @@ def run_demo(outdir, *, overwrite=False, quiet=False, write_extras=True):
         p = os.path.join(outdir, "kestrel_layout.dxf")
         write_dxf(ground, p, overwrite=overwrite)
         written.append(p)
-        p = os.path.join(outdir, "kestrel_layout.xml")
-        write_landxml(ground, p, overwrite=overwrite)
-        written.append(p)
+        for lay, stem in ((ground, "kestrel"), (drain, "harrow")):
+            p = os.path.join(outdir, f"{stem}_layout.xml")
+            write_landxml(lay, p, overwrite=overwrite)
+            written.append(p)
     print()
     print("written:")
     for p in written:
@@ -133,6 +137,28 @@ def run_demo(outdir, *, overwrite=False, quiet=False, write_extras=True):
     print(CAUTION)
     sys.stdout.flush()
     return 0
+
+
+def _depth_aware_gain(drain) -> str:
+    """The depth-aware gravity layout against the earlier layout (round 0), from run_info."""
+    ri = drain.run_info
+    if not ri.get("depth_layout_rounds"):
+        return ""
+    f = float
+    rows = [
+        ("failed checks", ri["depth_layout_failures_before"], ri["depth_layout_failures_after"]),
+        ("deepest invert (m)", f"{f(ri['depth_layout_max_depth_before_m']):.2f}",
+         f"{f(ri['depth_layout_max_depth_after_m']):.2f}"),
+        ("design cost", f"{f(ri['depth_layout_cost_before']):,.0f}",
+         f"{f(ri['depth_layout_cost_after']):,.0f}"),
+    ]
+    out = ["depth-aware layout vs the earlier gravity layout (same design basis, same prices):",
+           f"  {'':<20}{'earlier':>12}{'now':>12}"]
+    out += [f"  {a:<20}{b:>12}{c:>12}" for a, b, c in rows]
+    out.append(f"  {ri['depth_layout_links_changed']} links moved, "
+               f"{f(ri['depth_layout_saving_pct']):.1f} % saved, {ri['depth_layout_rounds']} design "
+               f"round(s), {'settled' if ri['depth_layout_settled'] == 'true' else 'cheapest kept'}")
+    return "\n".join(out)
 
 
 def _ground_vs_length(ground, plain) -> str:

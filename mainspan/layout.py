@@ -214,8 +214,8 @@ class Layout:
                          "under single link exchanges")
         if ri.get("gravity_layout_cost"):
             lines.insert(5, f"gravity layout  arborescence {float(ri['gravity_layout_cost']):,.1f} "
-                         f"vs Prim tree {float(ri['prim_layout_cost_same_pricing']):,.1f} priced "
-                         f"by flow direction ({ri['gravity_layout_saving_pct']} % saved)")
+                         f"vs Prim tree {float(ri['prim_layout_cost_same_pricing']):,.1f}, both "
+                         f"designed ({ri['gravity_layout_saving_pct']} % saved)")
         if ri.get("depth_layout_rounds"):
             lines.insert(6, "depth-aware     " + depth_layout_text(ri))
         return "\n".join(lines)
@@ -838,8 +838,9 @@ def _gravity_tree(sites, edges, keep, w_all, costs, elev, root_idx, design,
     earlier layout, priced by extra depth below minimum cover only.
 
     Returns a :class:`~mainspan.spanning.Tree` over candidate indices and a
-    dict with per-node directed link costs, the comparison with Prim's
-    tree priced the same way, and the rounds (``depth_layout``).
+    dict with per-node directed link costs, the design cost of the kept tree
+    against Prim's tree drained to the same outlet and designed the same
+    way, and the rounds (``depth_layout``).
     """
     # --- gravity layout (mainspan.gravity_layout) ---
     from .gravity_layout import depth_aware_tree, tree_designer
@@ -893,11 +894,11 @@ def _gravity_tree(sites, edges, keep, w_all, costs, elev, root_idx, design,
     tree = Tree(parent=np.asarray(arb.parent, np.int64), parent_edge=pe,
                 order=np.asarray(net.order, np.int64), roots=np.array([root], np.int64),
                 root_of=np.full(n, root, np.int64), weight=float(arb.total_weight))
-    # Prim's undirected tree, oriented towards the same outlet and priced by direction
+    # Prim's undirected tree, drained towards the same outlet and designed the same way
     pt = prim_tree(n, e, w, roots=[root])
-    pc = np.flatnonzero(pt.parent >= 0)
-    arc = 2 * pt.parent_edge[pc] + (e[pt.parent_edge[pc], 0] != pt.parent[pc])
-    prim_directed = float(arcs.weights[arc].sum())
-    return tree, {"cost": node_cost, "arborescence_cost": float(arb.total_weight),
-                  "prim_cost_same_pricing": prim_directed, "depth_layout": rounds.summary()}
+    prim_design = design_fn(np.asarray(pt.parent, np.int64), np.asarray(pt.parent_edge, np.int64))
+    summ = prim_design.summary
+    prim_cost = float(summ.get("whole_life_cost", summ["total_cost"]))
+    return tree, {"cost": node_cost, "arborescence_cost": rounds.costs[rounds.chosen],
+                  "prim_cost_same_pricing": prim_cost, "depth_layout": rounds.summary()}
     # --- end of the gravity layout ---

@@ -2,8 +2,10 @@
 
 * Kestrel Flats irrigation scheme — one pump station (``PS-1``) by the stream
   and about 150 field outlets (hydrants) on the fields, demand in L/s.
-* Harrow Brook drainage catchment — 60 inlets on the lower valley sides
-  draining to one outlet near the valley's low end.
+* Harrow Brook storm drainage catchment — 60 inlets on the lower valley
+  sides draining to one outlet near the valley's low end; each inlet drains
+  an invented catchment (``area_ha``, hectares) with an invented runoff
+  coefficient (``runoff_c``) for the Rational method.
 
 Both are in EPSG:32633 (WGS 84 / UTM 33N) inside the demo terrain's extent
 (x 512 000–515 000 m, y 5 120 000–5 122 500 m).  Run from the repository
@@ -44,7 +46,13 @@ def kestrel_outlets(seed=20261201):
 
 
 def harrow_inlets(seed=7031):
-    """Inlets on the lower valley sides, within 330 m of the valley axis."""
+    """Inlets on the lower valley sides, within 330 m of the valley axis.
+
+    Each inlet drains an invented catchment of 0.05–0.25 ha with a runoff
+    coefficient of 0.30–0.75 (a mix of roofs, roads and gardens), drawn
+    from its own seeded stream so the inlet positions stay those of earlier
+    versions.
+    """
     rng = np.random.default_rng(seed)
     n = 60
     ax, ay = 512000.0, 5120317.0            # valley axis of make_rasters.py, SW end
@@ -60,19 +68,24 @@ def harrow_inlets(seed=7031):
         if 0.35 * length < s < length - 60 and 40 < abs(d) < 330:
             pts.append((x, y))
     pts = np.asarray(pts)
-    q = np.round(rng.uniform(1.0, 5.0, n), 2)
+    catch = np.random.default_rng(seed + 1)
+    area = np.round(catch.uniform(0.05, 0.25, n), 3)
+    runoff = np.round(catch.uniform(0.30, 0.75, n), 2)
     ids = [f"IN{i + 1:02d}" for i in range(n)]
     pts = np.vstack([[[514800.0, 5122300.0]], pts])
-    return ["OUT-1"] + ids, ["outlet"] + ["demand"] * n, np.concatenate([[0.0], q]), pts
+    fields = {"area_ha": np.concatenate([[0.0], area]), "runoff_c": np.concatenate([[0.0], runoff])}
+    return ["OUT-1"] + ids, ["outlet"] + ["demand"] * n, fields, pts
 
 
 def _write(path, layer, ids, roles, q, pts):
+    """Write one point layer; *q* is the demand column (L/s) or a dict of further columns."""
     import geopandas as gpd
     import pyogrio
     import shapely
 
     pyogrio.set_gdal_config_options({"OGR_CURRENT_DATE": "2000-01-01T00:00:00.000Z"})
-    gdf = gpd.GeoDataFrame({"id": ids, "role": roles, "q_lps": q},
+    cols = dict(q) if isinstance(q, dict) else {"q_lps": q}
+    gdf = gpd.GeoDataFrame({"id": ids, "role": roles, **cols},
                            geometry=shapely.points(pts), crs=CRS)
     if os.path.exists(path):
         os.remove(path)

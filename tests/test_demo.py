@@ -133,3 +133,24 @@ def test_exports_do_not_depend_on_the_hash_seed(demo, tmp_path):
             out[ext] = p.read_bytes()
         outs.append(out)
     assert outs[0] == outs[1] == outs[2]
+
+
+def test_storm_demo_basis_and_depth_aware_gain(demo):
+    # the drainage demo is a storm catchment: Rational method Q = C i A / 360 (any drainage text)
+    path = demo / "harrow_layout.gpkg"
+    links, nodes = _read(path, "links"), _read(path, "nodes")
+    info = dict(zip(*_read(path, "run_info")[["key", "value"]].T.values))
+    assert info["design:gravity_basis"] == "storm"
+    out = links[links.from_node == "OUT-1"]
+    ca_total = float((nodes.area_ha * nodes.runoff_c).sum())
+    assert out.ca_ha.sum() == pytest.approx(ca_total, rel=1e-9)
+    q = out.ca_ha * out.intensity_mm_per_h / 0.36          # L/s
+    assert np.allclose(out.design_flow_lps, q, rtol=1e-9)
+    # the depth-aware layout against the earlier one, same basis and prices
+    assert int(info["depth_layout_failures_after"]) < int(info["depth_layout_failures_before"])
+    assert float(info["depth_layout_max_depth_after_m"]) <= float(info["depth_layout_max_depth_before_m"])
+    assert float(info["depth_layout_cost_after"]) < float(info["depth_layout_cost_before"])
+    from lxml import etree
+    root = etree.parse(str(demo / "harrow_layout.xml")).getroot()
+    net = root.find("{*}PipeNetworks/{*}PipeNetwork")
+    assert net.get("pipeNetType") == "storm"
