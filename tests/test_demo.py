@@ -51,6 +51,12 @@ def test_pressure_demo_is_sized_and_checked(demo):
     for a, b, f in zip(links.from_node, links.to_node, links.flow_lps):
         assert f == pytest.approx(q[b] + sum(q[v] for v in nx.descendants(g, b)), abs=1e-9)
     assert len(_read(demo / "kestrel_layout.gpkg", "quantities")) >= 2
+    # fittings as a point layer; the editable price template reads back as the flagged placeholders
+    fit = _read(demo / "kestrel_layout.gpkg", "fittings")
+    assert {"type", "size_mm", "link_id", "chainage_m", "node"} <= set(fit.columns) and len(fit) > 0
+    from mainspan.prices import default_prices, read_prices
+    tmpl = read_prices(demo / "inputs" / "prices.csv")
+    assert tmpl == default_prices() and tmpl.placeholder
 
 
 def test_gravity_demo_falls_to_the_outlet(demo):

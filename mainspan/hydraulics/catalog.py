@@ -193,11 +193,11 @@ def read_catalog(csv_path) -> PipeCatalog:
     col = {h: i for i, h in enumerate(header)}
     for c in _REQUIRED:
         if c not in col:
-            raise DataFileError(f"pipe catalog {path}: missing column '{c}'; the header must include {', '.join(_REQUIRED)}")
+            raise DataFileError(f"pipe catalog {path}, line 1: missing column '{c}'; the header must include {', '.join(_REQUIRED)}")
     if not ({"roughness_mm", "hw_c", "manning_n"} & col.keys()):
-        raise DataFileError(f"pipe catalog {path}: no friction column; add 'roughness_mm', 'hw_c' or 'manning_n'")
+        raise DataFileError(f"pipe catalog {path}, line 1, column 'roughness_mm': no friction column; add 'roughness_mm', 'hw_c' or 'manning_n'")
     if "rating_m" in col and "pn_bar" in col:
-        raise DataFileError(f"pipe catalog {path}: both 'rating_m' and 'pn_bar' given; keep one")
+        raise DataFileError(f"pipe catalog {path}, line 1, column 'pn_bar': both 'rating_m' and 'pn_bar' given; keep one")
     out = {k: [] for k in ("name", "nominal_mm", "inner_mm", "roughness_mm", "hw_c", "rating_m", "cost_per_m", "material", "manning_n")}
     seen = {}
     body = [(i + 2, r) for i, r in enumerate(rows[1:]) if any(x.strip() for x in r)]

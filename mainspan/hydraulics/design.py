@@ -783,6 +783,7 @@ def design_network(
         energy_cost_pv=energy_pv,
         whole_life_cost=float(quantities["total_cost"][-1]),
         prices=prices.describe(),
+        prices_placeholder=bool(prices.placeholder),
         failing_checks=counts,
         n_failures=len(failures),
         notes=notes,
