@@ -202,6 +202,78 @@ def _settings_from(a):
     return flags, None
 
 
+def _inputs_of(settings, proj=None):
+    """(label, path) of every file a run with *settings* reads."""
+    out = []
+    if proj is not None:
+        out.append(("project file", proj.path))
+    s = settings.get("sites", {})
+    if s.get("path"):
+        out.append(("sites", s["path"]))
+    r = settings.get("rasters", {})
+    if r.get("terrain"):
+        out.append(("terrain", r["terrain"]))
+    lc = r.get("land_cost")
+    if isinstance(lc, dict):
+        out += [(f"land-cost raster {k!r}", v) for k, v in lc.items() if isinstance(v, str)]
+    elif isinstance(lc, str):
+        out.append(("land-cost raster", lc))
+    if settings.get("design", {}).get("catalog"):
+        out.append(("pipe catalog", settings["design"]["catalog"]))
+    return out
+
+
+def _output_specs(a, proj, out, items):
+    """OutputSpecs for (option value, project key, kind) triples; the option wins."""
+    from .safeio import OutputSpec
+
+    specs = []
+    for opt_val, opt_name, key, kind in items:
+        if opt_val:
+            specs.append(OutputSpec(opt_name, opt_val, kind, layered=kind == "gpkg"))
+        elif out.get(key):
+            specs.append(OutputSpec(f"[output] {key}", out[key], kind,
+                                    from_project=proj is not None, layered=kind == "gpkg"))
+    return specs
+
+
+def preflight_outputs(a, proj, settings_list, items):
+    """Run :func:`mainspan.safeio.preflight` for a command; returns the checked OutputSpecs."""
+    from .safeio import preflight
+
+    out = (proj.base.get("output", {}) if proj is not None else {})
+    specs = _output_specs(a, proj, out, items)
+    inputs = []
+    for st in settings_list:
+        inputs += _inputs_of(st, proj)
+    return preflight(specs, inputs, cli_overwrite=bool(getattr(a, "overwrite", False)),
+                     project_overwrite=bool(out.get("overwrite", False)),
+                     project_root=proj.root if proj is not None else None,
+                     allow_outside=bool(getattr(a, "allow_outside_project", False)))
+
+
+def preflight_compare(a, proj, gpkg, rep):
+    """Output checks of ``mainspan compare``; returns (gpkg overwrite, report overwrite)."""
+    from .safeio import OutputSpec, preflight
+
+    out = proj.base.get("output", {})
+    specs = []
+    if gpkg:
+        specs.append(OutputSpec("--out" if a.out else "[output] gpkg (+ _scenarios)", gpkg,
+                                "gpkg", from_project=not a.out, layered=True))
+    if rep:
+        specs.append(OutputSpec("--report" if a.report else "[output] report (+ _scenarios)",
+                                rep, "report", from_project=not a.report))
+    inputs = []
+    for name in ["base", *proj.scenarios]:
+        inputs += _inputs_of(proj.settings_for(name), proj)
+    preflight(specs, inputs, cli_overwrite=bool(a.overwrite),
+              project_overwrite=bool(out.get("overwrite", False)), project_root=proj.root,
+              allow_outside=bool(getattr(a, "allow_outside_project", False)))
+    over = {o.kind: o.overwrite for o in specs}
+    return over.get("gpkg", False), over.get("report", False)
+
+
 def _run_plan(settings, *, quiet=False):
     from .layout import plan_layout
     from .project import plan_kwargs
@@ -216,24 +288,27 @@ def _run_plan(settings, *, quiet=False):
 def cmd_plan(a):
     settings, proj = _settings_from(a)
     out = settings.get("output", {})
-    gpkg = a.out or out.get("gpkg")
-    if not gpkg:
+    if not (a.out or out.get("gpkg")):
         raise InputError("no output given: pass --out LAYOUT.gpkg (or [output] gpkg in the "
                          "project file)")
-    overwrite = bool(a.overwrite or out.get("overwrite", False))
+    specs = preflight_outputs(a, proj, [settings],
+                              [(a.out, "--out", "gpkg", "gpkg"),
+                               (a.report, "--report", "report", "report")])
+    gspec = specs[0]
+    gpkg = gspec.path
     from .writers.gpkg import check_layers_free
-    check_layers_free(gpkg, ("links", "nodes", "run_info"), overwrite=overwrite)
+    check_layers_free(gpkg, ("links", "nodes", "run_info"), overwrite=gspec.overwrite)
     lay, _ = _run_plan(settings, quiet=a.quiet)
-    lay.write_gpkg(gpkg, overwrite=overwrite)
+    lay.write_gpkg(gpkg, overwrite=gspec.overwrite)
     print(lay.summary())
     _print_design(lay)
     print(f"written         {gpkg} (layers: links, nodes, run_info"
           + (", quantities" if "quantities" in lay.tables else "") + ")")
-    rep = a.report or out.get("report")
-    if rep:
+    if len(specs) > 1:
         from .report.html import write_report
-        write_report(lay, rep, overwrite=overwrite)
-        print(f"report          {rep}")
+        rep = specs[1]
+        write_report(lay, rep.path, overwrite=rep.overwrite)
+        print(f"report          {rep.path}")
     if lay.system:
         print(CAUTION)
     return 0
@@ -316,9 +391,21 @@ def cmd_demo(a):
 def cmd_export(a):
     from .layout import read_layout
 
-    lay = read_layout(a.layout_gpkg)
     to = a.to
     ext = os.path.splitext(to)[1].lower()
+    kind = {".dxf": "dxf", ".xml": "landxml", ".landxml": "landxml", ".csv": "links_csv",
+            ".png": "figure", ".svg": "figure", ".pdf": "figure"}.get(ext)
+    if kind is not None:
+        from .safeio import OutputSpec, preflight
+        preflight([OutputSpec("--to", to, kind)], [("layout", a.layout_gpkg)],
+                  cli_overwrite=a.overwrite)
+        if kind == "dxf":   # the DXF writer also writes the .prj beside it
+            prj = os.path.splitext(to)[0] + ".prj"
+            from .safeio import _same
+            if _same(prj, a.layout_gpkg):
+                raise InputError(f"--to {to!r}: its projection file {prj!r} would replace "
+                                 "the layout; write the DXF elsewhere")
+    lay = read_layout(a.layout_gpkg)
     if ext == ".dxf":
         from .writers.dxf import write_dxf
         origin = None
@@ -362,6 +449,9 @@ def cmd_report(a):
     from .layout import read_layout
     from .report.html import write_report
 
+    from .safeio import OutputSpec, preflight
+    preflight([OutputSpec("--out", a.out, "report")], [("layout", a.layout_gpkg)],
+              cli_overwrite=a.overwrite)
     lay = read_layout(a.layout_gpkg)
     write_report(lay, a.out, overwrite=a.overwrite)
     print(f"written {a.out}")
@@ -390,6 +480,8 @@ def build_parser():
     pl.add_argument("--out", metavar="LAYOUT.gpkg", help="output GeoPackage")
     pl.add_argument("--report", metavar="HTML", help="also write the review report")
     pl.add_argument("--overwrite", action="store_true", help="replace existing outputs")
+    pl.add_argument("--allow-outside-project", action="store_true",
+                    help="let the project file's [output] paths lie outside its folder")
     pl.add_argument("--quiet", action="store_true", help="no progress on stderr")
     pl.set_defaults(func=cmd_plan)
 
@@ -434,6 +526,8 @@ def build_parser():
     cp.add_argument("--perturb-pct", type=float, metavar="X", help="± land-cost perturbation")
     cp.add_argument("--seed", type=int, help="seed of the perturbations")
     cp.add_argument("--overwrite", action="store_true", help="replace existing outputs")
+    cp.add_argument("--allow-outside-project", action="store_true",
+                    help="let the project file's [output] paths lie outside its folder")
     cp.add_argument("--quiet", action="store_true", help="no progress on stderr")
     cp.set_defaults(func=cmd_compare)
     return p
@@ -449,8 +543,12 @@ def main(argv=None) -> int:
     if not getattr(args, "command", None):
         parser.print_help()
         return 2
+    old_term = _catch_sigterm()
     try:
         return int(args.func(args) or 0)
+    except _Terminated:
+        print("mainspan: terminated; no output was left half-written", file=sys.stderr)
+        return 143
     except (InputError, DataFileError) as exc:
         msg = " ".join(str(exc).split())
         print(f"mainspan: error: {msg}", file=sys.stderr)
@@ -467,3 +565,33 @@ def main(argv=None) -> int:
         print(f"mainspan: internal error: {type(exc).__name__}: {exc} (set MAINSPAN_DEBUG=1 "
               "for a traceback and please report it)", file=sys.stderr)
         return 1
+    finally:
+        _restore_sigterm(old_term)
+
+
+class _Terminated(BaseException):
+    """SIGTERM, raised so that temporary files are removed on the way out."""
+
+
+def _on_sigterm(signum, frame):
+    raise _Terminated()
+
+
+def _catch_sigterm():
+    import signal
+    import threading
+    if threading.current_thread() is not threading.main_thread():
+        return None
+    try:
+        return signal.signal(signal.SIGTERM, _on_sigterm)
+    except (ValueError, OSError):
+        return None
+
+
+def _restore_sigterm(old):
+    import signal
+    if old is not None:
+        try:
+            signal.signal(signal.SIGTERM, old)
+        except (ValueError, OSError):
+            pass

@@ -267,8 +267,11 @@ def read_layout(path, *, suffix="") -> Layout:
     """
     import shapely
 
-    from .writers.gpkg import list_layers, read_table
+    from .writers.gpkg import check_one_run, list_layers, read_table
 
+    # refuse layers written by different runs (safeio rules; see writers/gpkg.py)
+    check_one_run(path, [f"{b}{suffix}" for b in ("links", "nodes", "run_info", "quantities",
+                                                  "checks", "access_points", "link_profiles")])
     links_df = read_table(path, f"links{suffix}")
     nodes_df = read_table(path, f"nodes{suffix}")
     names = list_layers(path)

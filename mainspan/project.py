@@ -167,6 +167,17 @@ def _validate_sections(doc, where, schema, *, allow_scenarios=True):
     return out
 
 
+def _check_output_extensions(d, where):
+    """Each [output] key accepts only its own kind of file (see mainspan.safeio.EXTENSIONS)."""
+    from .safeio import EXTENSIONS
+
+    for key, val in (d.get("output") or {}).items():
+        if key in EXTENSIONS and isinstance(val, str) and not val.lower().endswith(EXTENSIONS[key]):
+            raise InputError(f"{where} [output] {key} = {val!r}: must end in "
+                             f"{' or '.join(EXTENSIONS[key])}; choose a file name with that "
+                             "extension")
+
+
 def _resolve_paths(d, root):
     for sec, key in _PATH_KEYS:
         if sec in d and isinstance(d[sec].get(key), str):
@@ -203,17 +214,26 @@ def load_project(path) -> Project:
     path = os.fspath(path)
     if not os.path.exists(path):
         raise DataFileError(f"project file {path!r} does not exist; check the path")
+    if os.path.isdir(path):
+        raise InputError(f"project file {path!r} is a folder; give the .toml file inside it")
     try:
         with open(path, "rb") as f:
             doc = tomllib.load(f)
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"project file {path!r} is not valid TOML: {exc}") from None
+    except UnicodeDecodeError:
+        raise InputError(f"project file {path!r} is not a text file (TOML must be UTF-8 "
+                         "text); check the path") from None
+    except OSError as exc:
+        raise DataFileError(f"project file {path!r} cannot be read: {exc.strerror or exc}; "
+                            "check the path and its permissions") from None
     schema = _schema()
     root = os.path.dirname(os.path.abspath(path))
     base = _validate_sections(doc, f"project {path!r}", schema)
     stability = base.pop("stability", {})
     if "sites" not in base or "path" not in base["sites"]:
         raise InputError(f"project {path!r}: [sites] path is required (the point layer of sites)")
+    _check_output_extensions(base, f"project {path!r}")
     base = _resolve_paths(base, root)
     if "prices" in base:        # check the table now, while its lines can be named
         from .prices import prices_from_mapping
@@ -231,6 +251,7 @@ def load_project(path) -> Project:
             if not isinstance(body["description"], str):
                 raise InputError(f"project {path!r} [scenarios.{name}]: description must be text")
             v["description"] = body["description"]
+        _check_output_extensions(v, f"project {path!r} [scenarios.{name}]")
         scen[name] = _resolve_paths(v, root)
     return Project(path=path, root=root, base=base, scenarios=scen, stability=stability)
 

@@ -1051,11 +1051,11 @@ def compare_cli(args):
     overwrite = bool(args.overwrite or out.get("overwrite", False))
     gpkg = args.out or (_suffixed(out["gpkg"], "_scenarios") if out.get("gpkg") else None)
     rep = args.report or (_suffixed(out["report"], "_scenarios") if out.get("report") else None)
+    # output safety (mainspan.safeio): same-file, project-folder and overwrite rules first
+    from .cli import preflight_compare
+    overwrite, rep_overwrite = preflight_compare(args, proj, gpkg, rep)
     if gpkg:
         check_layers_free(gpkg, layer_names(["base", *proj.scenarios]), overwrite=overwrite)
-    if rep and not overwrite and os.path.exists(rep):
-        from .errors import OverwriteError
-        raise OverwriteError(f"report {rep!r} exists; pass --overwrite or write elsewhere")
     from .cli import _progress
     sset = run_scenarios(proj, progress=_progress(args.quiet), stability_runs=runs,
                          perturb_pct=pct, seed=seed)
@@ -1066,7 +1066,7 @@ def compare_cli(args):
               "scenario_links, scenario_summary)")
     if rep:
         from .report.html import write_report
-        write_report(sset["base"], rep, overwrite=overwrite,
+        write_report(sset["base"], rep, overwrite=rep_overwrite,
                      title=f"Scenario comparison: {os.path.basename(proj.path)}",
                      extra_sections=report_sections(sset))
         print(f"report          {rep}")

@@ -19,6 +19,7 @@ import html
 
 import numpy as np
 
+from ..safeio import HTML_MARKER
 from ..writers.tables import atomic_write, format_value, total_rows
 
 __all__ = ["write_report", "report_html", "CAUTIONS"]
@@ -310,6 +311,7 @@ def report_html(layout, *, title=None, extra_sections=(), n_sections=3):
                 f"{_e(CAUTIONS[0])}</footer>")
     return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
             "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">"
+            f"{HTML_MARKER}"
             f"<title>{_e(title)}</title><style>{_CSS}</style></head><body>\n"
             + "\n".join(body) + "\n</body></html>\n")
 

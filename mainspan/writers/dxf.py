@@ -265,6 +265,7 @@ def write_dxf(layout, path, *, by="role", polylines="3d", text_height_m=None, or
         doc = ezdxf.new("R2013", setup=False)
     finally:
         ezdxf.options.write_fixed_meta_data_for_testing = keep
+    doc.header.custom_vars.append("WRITER", "mainspan")   # marks the file as ours (safeio)
     doc.header["$INSUNITS"] = 6          # metres
     doc.header["$MEASUREMENT"] = 1       # metric
     doc.header["$LUNITS"] = 2            # decimal

@@ -5,23 +5,20 @@ column name (``_m`` → mm resolution, ``_mm`` → 0.1 mm, costs → cents, …)
 the same layout always gives the same bytes and a diff between two runs shows
 only real changes.  Missing values (NaN) are written as empty cells.
 
-The small file-safety helpers here (:func:`check_target`, :func:`atomic_write`)
-are shared by every mainspan writer: output goes to a temporary file in the
-target's folder and is moved into place with :func:`os.replace`, so a failed
-write never leaves half a file, and an existing file is only replaced when
-``overwrite=True``.
+The file-safety helpers re-exported here (:func:`check_target`,
+:func:`atomic_write`) come from :mod:`mainspan.safeio` and are shared by every
+mainspan writer: lock, temporary file in the target's folder, fsync, atomic
+move; an existing file is only replaced when ``overwrite=True``.
 """
 
 from __future__ import annotations
 
 import csv
 import io
-import os
-import tempfile
 
 import numpy as np
 
-from ..errors import DataFileError, InputError, OverwriteError
+from ..errors import InputError
 
 __all__ = ["write_links_csv", "write_quantities_csv", "format_value", "check_target",
            "atomic_write", "link_inverts", "total_rows"]
@@ -32,41 +29,8 @@ _DECIMALS = (("_lps", 3), ("_mps", 3), ("_pct", 3), ("_mm", 1), ("_m", 3),
 
 
 # --------------------------------------------------------------------------- file safety
-def check_target(path, *, overwrite=False, what="output"):
-    """Validate an output path; refuse an existing file unless ``overwrite``.
-
-    Returns the path as ``str``.
-    """
-    path = os.fspath(path)
-    folder = os.path.dirname(os.path.abspath(path))
-    if not os.path.isdir(folder):
-        raise DataFileError(f"{what} {path!r}: folder {folder!r} does not exist; "
-                            "create it first or choose another path")
-    if os.path.isdir(path):
-        raise DataFileError(f"{what} {path!r} is a folder; give a file name")
-    if os.path.exists(path) and not overwrite:
-        raise OverwriteError(f"{what} {path!r} already exists; pass --overwrite "
-                             "(overwrite=True) to replace it")
-    return path
-
-
-def atomic_write(path, data, *, overwrite=False, what="output"):
-    """Write ``data`` (bytes or str, UTF-8) to ``path`` via a temp file + ``os.replace``."""
-    path = check_target(path, overwrite=overwrite, what=what)
-    if isinstance(data, str):
-        data = data.encode("utf-8")
-    folder = os.path.dirname(os.path.abspath(path))
-    fd, tmp = tempfile.mkstemp(prefix=".mainspan-", suffix=".tmp", dir=folder)
-    try:
-        with os.fdopen(fd, "wb") as f:
-            f.write(data)
-        os.chmod(tmp, 0o644)
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
-    return path
+# Lock, temp file, fsync, rights and atomic move live in mainspan.safeio, shared by all writers.
+from ..safeio import atomic_write, check_target  # noqa: E402,F401
 
 
 # --------------------------------------------------------------------------- shared reads
