@@ -11,9 +11,13 @@ against local codes; locate existing services before digging.
 
 from importlib import import_module
 
-from ._version import __version__
-from .errors import (CertificateError, DataFileError, DisconnectedError, InputError,
-                     MainspanError, OverwriteError)
+from . import _numba_setup
+
+_numba_setup.setup()   # before numba is imported: a cache folder this user can write
+
+from ._version import __version__  # noqa: E402
+from .errors import (CertificateError, DataFileError, DisconnectedError,  # noqa: E402
+                     InputError, MainspanError, OverwriteError)
 
 # Public names are imported on first use, so ``import mainspan`` stays quick and
 # the command line pays only for the stages it runs.
