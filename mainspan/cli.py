@@ -218,8 +218,10 @@ def _inputs_of(settings, proj=None):
         out += [(f"land-cost raster {k!r}", v) for k, v in lc.items() if isinstance(v, str)]
     elif isinstance(lc, str):
         out.append(("land-cost raster", lc))
-    if settings.get("design", {}).get("catalog"):
-        out.append(("pipe catalog", settings["design"]["catalog"]))
+    for key, label in (("catalog", "pipe catalog"), ("prices", "price table")):
+        v = settings.get("design", {}).get(key)
+        if isinstance(v, str) and v:
+            out.append((label, v))
     return out
 
 
