@@ -2,7 +2,9 @@
 
 Reports the sites (count, roles, extent, working CRS), each raster (CRS,
 size, cell size, extent, nodata), which sites each raster covers, and a
-memory estimate for the plan.
+memory estimate for the plan; then runs the plan itself in memory (a dry
+run, nothing written) so that ``check`` refuses exactly what ``plan``
+refuses.
 """
 
 from __future__ import annotations
@@ -69,8 +71,21 @@ def _raster_info(path, working_crs, xy, raster_crs=None):
     return info, inside
 
 
-def check_inputs(settings) -> CheckReport:
-    """Validate the inputs named by merged settings (see :mod:`mainspan.project`)."""
+def check_inputs(settings, *, dry_run=True) -> CheckReport:
+    """Validate the inputs named by merged settings (see :mod:`mainspan.project`).
+
+    Parameters
+    ----------
+    settings : dict
+        Merged settings, as ``mainspan plan`` uses them.
+    dry_run : bool, default True
+        When the quick checks pass, also run the whole plan in memory (nothing
+        is written), so that every refusal of ``plan`` is reported here too.
+
+    Returns
+    -------
+    CheckReport
+    """
     from .candidates import CANDIDATE_BUILDERS
     from .project import plan_kwargs
     from .sites import read_sites
@@ -124,4 +139,15 @@ def check_inputs(settings) -> CheckReport:
     m_est = 3 * sites.n if "delaunay" in str(method) else plan_kw.get("k", 8) * sites.n
     est = m_est * 8 * 24 + sites.n * 8 * 20 + min(raster_bytes, 512 * 2**20)
     rep.lines.append(f"memory estimate ~{est / 2**20:.0f} MiB for about {m_est:,} candidate links")
+    if dry_run and not rep.problems:
+        # The same validation as 'plan', by running it (nothing is written): check never
+        # says OK where plan would refuse (an all-nodata DEM, a negative land cost, ...).
+        from .layout import plan_layout
+        try:
+            lay = plan_layout(sites, **plan_kw)
+        except (InputError, DataFileError) as exc:
+            rep.problems.append(" ".join(str(exc).split()))
+        else:
+            rep.lines.append(f"dry run         planned {lay.n_links} links, total cost "
+                             f"{lay.total('cost'):,.1f} (nothing written)")
     return rep

@@ -35,8 +35,14 @@ def _progress(quiet):
 
     def say(stage, done, total):
         if done == 0 and stage not in last:
-            last[stage] = True
+            last[stage] = -1.0
             print(f"[mainspan] {stage} …", file=sys.stderr, flush=True)
+        elif stage.startswith("stability") and total and done:
+            # long, repeated work: a line every 10 % so that the user sees it moving
+            step = int(10 * done / total)
+            if step > last.get(stage, -1):
+                last[stage] = step
+                print(f"[mainspan] {stage} {done}/{total}", file=sys.stderr, flush=True)
     return say
 
 
@@ -53,7 +59,9 @@ def _site_options(p):
     g.add_argument("--elevation-field", help="field holding site elevations in metres")
     g.add_argument("--x-field", help="CSV column of x / longitude (default x)")
     g.add_argument("--y-field", help="CSV column of y / latitude (default y)")
-    g.add_argument("--sites-crs", metavar="CRS", help="CRS of site coordinates when the file has none")
+    g.add_argument("--sites-crs", metavar="CRS",
+                   help="CRS of the site coordinates: needed when the file has none (CSV); "
+                   "when given, it overrides the file's own CRS (to correct a wrong one)")
     g.add_argument("--crs", metavar="CRS", help="working CRS (projected); default: the input's "
                    "projected CRS or the UTM zone holding most sites")
     g.add_argument("--merge-within", type=float, metavar="M",
@@ -73,6 +81,9 @@ def _raster_options(p):
                    help="links crossing nodata or leaving a raster: barrier (default), skip, error")
     g.add_argument("--sample-spacing-m", type=float, metavar="M",
                    help="terrain sampling step (default half a cell)")
+    g.add_argument("--memory-limit", metavar="SIZE",
+                   help="refuse work estimated to need more memory than SIZE, e.g. 4G "
+                   "(default: half the installed memory)")
     g.add_argument("--use-site-z", action="store_true", default=None,
                    help="use the sites' own Z for node elevations where given")
     w = p.add_argument_group("cost weights")
@@ -377,8 +388,12 @@ def format_quantities(q) -> str:
 def cmd_check(a):
     from .check import check_inputs
 
-    settings, _ = _settings_from(a)
+    settings, proj = _settings_from(a)
     check_design_keys(settings, where="option --design")
+    if proj is not None:   # the project's outputs: same checks as plan (existing files aside)
+        a.overwrite = True
+        preflight_outputs(a, proj, [settings], [(None, "--out", "gpkg", "gpkg"),
+                                                (None, "--report", "report", "report")])
     report = check_inputs(settings)
     print(report.text())
     return 0 if report.ok else 2
@@ -438,6 +453,10 @@ def cmd_export(a):
             write_links_csv(lay, to, overwrite=a.overwrite)
         print(f"written {to}")
     elif ext in (".png", ".svg", ".pdf"):
+        if not _has_ground(lay):
+            raise InputError(f"layout {a.layout_gpkg!r} has no ground levels (it was planned "
+                             "without --terrain and its sites carry no elevations), so a long "
+                             "section would be empty; plan again with --terrain DEM")
         from .report.plots import save_long_section
         save_long_section(lay, to, to_node=a.node, overwrite=a.overwrite)
         print(f"written {to}")
@@ -445,6 +464,18 @@ def cmd_export(a):
         raise InputError(f"option --to: cannot tell the format of {to!r}; use .dxf, .xml "
                          "(LandXML), .csv, or .png/.svg/.pdf for a long section")
     return 0
+
+
+def _has_ground(lay) -> bool:
+    """Whether a layout holds any ground level: profiles, link-end or node elevations."""
+    import numpy as np
+
+    def finite(v):
+        return v is not None and bool(np.isfinite(np.asarray(v, dtype=float)).any())
+
+    prof = lay.profiles
+    return ((prof is not None and finite(prof.ground_m)) or finite(lay.links.get("z_from_m"))
+            or finite(lay.links.get("z_to_m")) or finite(lay.nodes.get("elevation_m")))
 
 
 def cmd_report(a):
@@ -492,6 +523,8 @@ def build_parser():
     _site_options(ck)
     _raster_options(ck)
     _tree_options(ck)
+    ck.add_argument("--allow-outside-project", action="store_true",
+                    help="let the project file's [output] paths lie outside its folder")
     ck.set_defaults(func=cmd_check)
 
     dm = sub.add_parser("demo", help="write the demo scenario to OUTDIR and plan it")
@@ -527,6 +560,9 @@ def build_parser():
     cp.add_argument("--stability", type=int, metavar="N", help="perturbation runs per scenario")
     cp.add_argument("--perturb-pct", type=float, metavar="X", help="± land-cost perturbation")
     cp.add_argument("--seed", type=int, help="seed of the perturbations")
+    cp.add_argument("--memory-limit", metavar="SIZE",
+                    help="refuse work estimated to need more memory than SIZE, e.g. 4G "
+                    "(default: half the installed memory)")
     cp.add_argument("--overwrite", action="store_true", help="replace existing outputs")
     cp.add_argument("--allow-outside-project", action="store_true",
                     help="let the project file's [output] paths lie outside its folder")
@@ -547,6 +583,9 @@ def main(argv=None) -> int:
         return 2
     old_term = _catch_sigterm()
     try:
+        from .safeio import parse_size, set_memory_limit
+        ml = getattr(args, "memory_limit", None)
+        set_memory_limit(parse_size(ml) if ml is not None else None)
         return int(args.func(args) or 0)
     except _Terminated:
         print("mainspan: terminated; no output was left half-written", file=sys.stderr)

@@ -447,6 +447,39 @@ _BUILTIN = ("terrain", "land", "length")
 
 
 # --------------------------------------------------------------------------- helpers
+def _refuse_bad_costs(tname, out, cost, ctx, e, node_id, weights, negative):
+    """A negative cost, or an overflow of a built-in term, is an input error naming its source.
+
+    Built-in terms are finite wherever their inputs are, so an infinite cost from
+    them is an overflow of too large weights, not an impassable link.
+    """
+    def ends(i):
+        return (f"sites {node_id[e[i, 0]]}-{node_id[e[i, 1]]}" if node_id is not None
+                else f"nodes {e[i, 0]}-{e[i, 1]}")
+
+    src = out.get("nodata_source") or f"cost term {tname!r}"
+    if tname == "land":
+        src = src.replace("land-cost raster(s) cost expression", "cost expression", 1)
+    with np.errstate(invalid="ignore"):
+        neg = cost < 0
+    if negative and neg.any():
+        i = int(np.flatnonzero(neg)[0])
+        raise InputError(f"{src} gives a negative cost on {int(neg.sum())} candidate link(s), "
+                         f"e.g. link {i} ({ends(i)}): {float(cost[i]):.6g}; costs must be >= 0: "
+                         "correct the raster values, or the expression (e.g. max(..., 0))")
+    if tname in _BUILTIN or tname == "total":
+        inf = np.isinf(cost)
+        if inf.any():
+            i = int(np.flatnonzero(inf)[0])
+            big = [f"{OPTION_NAMES[k]} {getattr(weights, k):g}" for k in OPTION_NAMES
+                   if k != "steep_slope_pct" and getattr(weights, k) > 1e100]
+            raise InputError(
+                f"the cost of {int(inf.sum())} candidate link(s), e.g. link {i} ({ends(i)}), "
+                f"overflows (above 1.8e308) in {'the total' if tname == 'total' else src}"
+                + (f" with {', '.join(big)}" if big else "")
+                + "; use smaller weights: only their ratios matter for the layout")
+
+
 
 def _open(src, *, working_crs, raster_crs, name, what):
     if isinstance(src, Surface):
@@ -520,7 +553,7 @@ def _validate_links(xy, edges):
 def price_links(xy, edges, *, working_crs, terrain=None, land_cost=None, cost_expression=None,
                 class_costs=None, weights=CostWeights(), on_nodata="barrier",
                 sample_spacing_m=None, raster_crs=None, extra_terms=(), progress=None,
-                node_id=None):
+                node_id=None, refuse_negative=False):
     """Price candidate links over terrain and land-cost rasters.
 
     Parameters
@@ -555,6 +588,10 @@ def price_links(xy, edges, *, working_crs, terrain=None, land_cost=None, cost_ex
         ``progress(done, total)``; ``total`` is m times the number of passes.
     node_id : sequence of str, optional
         Site ids, so that messages name the sites a link joins.
+    refuse_negative : bool, default False
+        Raise :class:`InputError` naming the raster or expression (and a link)
+        when a cost term gives a negative cost; the planning pipeline sets it,
+        as a tree cannot be grown over negative costs.
 
     Returns
     -------
@@ -667,12 +704,14 @@ def price_links(xy, edges, *, working_crs, terrain=None, land_cost=None, cost_ex
         extra_cols: list[str] = []
         for tname, fn in all_terms:
             ctx.progress = stage_progress
-            out = fn(ctx)
+            with np.errstate(over="ignore"):    # overflow is refused by name just below
+                out = fn(ctx)
             if tname == "terrain" and ter is not None or tname == "land" and land:
                 progressed[0] += m * (1 if tname == "terrain" or expr is not None else len(land))
             _check_output(tname, out, m, ctx.components)
             cost = np.asarray(out["cost"], dtype=np.float64)
             source = out.get("nodata_source", f"cost term {tname!r}")
+            _refuse_bad_costs(tname, out, cost, ctx, e, node_id, weights, refuse_negative)
             nod = out.get("nodata_m")
             if nod is not None:
                 nod = np.asarray(nod, dtype=np.float64)
@@ -697,7 +736,7 @@ def price_links(xy, edges, *, working_crs, terrain=None, land_cost=None, cost_ex
             if bad.any():
                 labels.append(f"cost term {tname!r} gave a non-finite cost")
                 code[bad] = len(labels) - 1
-            with np.errstate(invalid="ignore"):
+            with np.errstate(invalid="ignore", over="ignore"):   # overflow refused below
                 total = total + np.where(np.isfinite(cost), cost, 0.0)
             for k, v in out.items():
                 if k in ("cost", "nodata_m", "nodata_source"):
@@ -706,6 +745,10 @@ def price_links(xy, edges, *, working_crs, terrain=None, land_cost=None, cost_ex
                 if tname not in _BUILTIN or k.startswith("land_cost_"):
                     extra_cols.append(k)
         ctx.components["nodata_fraction"] = nodata_fraction
+        over = np.isinf(total) & (code < 0)           # finite terms whose sum overflowed
+        if over.any():
+            _refuse_bad_costs("total", {}, np.where(over, np.inf, 0.0), ctx, e, node_id, weights,
+                              False)
         passable = code < 0
         total[~passable] = np.inf
         comps = {k: ctx.components[k] for k in BASE_COMPONENTS}

@@ -62,6 +62,40 @@ _TOKEN = re.compile(r"""
 _OPEN_ENDED = {"+", "-", "*", "/", "<", ">", "<=", ">=", "==", "!=", "(", ",", "and", "or", "not"}
 
 
+#: Longest expression accepted, in characters.
+MAX_CHARS = 4000
+#: Deepest nesting accepted (parentheses, and operators inside operators).
+MAX_DEPTH = 60
+#: Most operators, numbers and names accepted in one expression.
+MAX_NODES = 2000
+
+
+def _q(text: str) -> str:
+    """The expression as quoted in messages: shortened when long."""
+    return repr(text) if len(text) <= 80 else repr(text[:60]) + f" … ({len(text)} characters)"
+
+
+def _check_size(text: str, tree=None):
+    """Refuse expressions too long, too deep or too big to evaluate safely (one line each)."""
+    if tree is None:
+        if len(text) > MAX_CHARS:
+            raise InputError(f"cost expression {_q(text)} is {len(text)} characters long; the "
+                             f"limit is {MAX_CHARS}: combine the rasters beforehand or simplify")
+        return
+    count, stack = 0, [(tree, 0)]
+    while stack:                                   # iterative: no recursion on deep input
+        node, d = stack.pop()
+        count += 1
+        if d > MAX_DEPTH:
+            raise InputError(f"cost expression {_q(text)} nests deeper than {MAX_DEPTH} levels "
+                             f"(at position {_pos(text, node)}); simplify it, e.g. with "
+                             "min()/max() of several terms")
+        if count > MAX_NODES:
+            raise InputError(f"cost expression {_q(text)} has more than {MAX_NODES} terms; "
+                             "combine the rasters beforehand or simplify")
+        stack.extend((c, d + 1) for c in ast.iter_child_nodes(node))
+
+
 def _scan(text: str):
     """Reject characters and tokens outside the language, naming the 1-based position."""
     pos = 0
@@ -71,25 +105,28 @@ def _scan(text: str):
         mt = _TOKEN.match(text, pos)
         if mt is None or mt.lastgroup == "bad":
             tok = mt.group() if mt is not None else text[pos]
-            raise InputError(f"cost expression {text!r}: unexpected {tok!r} at position {pos + 1}; "
+            raise InputError(f"cost expression {_q(text)}: unexpected {tok!r} at position {pos + 1}; "
                              "allowed are numbers, raster names, + - * / ( ) , comparisons, "
                              f"and/or/not and the functions {', '.join(FUNCTIONS)}")
         tok = mt.group()
         if mt.lastgroup != "ws":
             if tok == "(":
                 depth.append(pos)
+                if len(depth) > MAX_DEPTH:
+                    raise InputError(f"cost expression {_q(text)}: parentheses nest deeper "
+                                     f"than {MAX_DEPTH} levels at position {pos + 1}; simplify it")
             elif tok == ")":
                 if not depth:
-                    raise InputError(f"cost expression {text!r}: unmatched ')' at position "
+                    raise InputError(f"cost expression {_q(text)}: unmatched ')' at position "
                                      f"{pos + 1}; remove it or add the opening '('")
                 depth.pop()
             last = (tok, pos)
         pos = mt.end()
     if depth:
-        raise InputError(f"cost expression {text!r}: '(' at position {depth[-1] + 1} is never "
+        raise InputError(f"cost expression {_q(text)}: '(' at position {depth[-1] + 1} is never "
                          "closed; add the closing ')'")
     if last is not None and last[0] in _OPEN_ENDED:
-        raise InputError(f"cost expression {text!r}: it ends after {last[0]!r} at position "
+        raise InputError(f"cost expression {_q(text)}: it ends after {last[0]!r} at position "
                          f"{last[1] + 1}; complete the expression")
 
 
@@ -184,7 +221,7 @@ class Expression:
 
 def _check(node, text, names, used):
     def fail(what, n=node):
-        raise InputError(f"cost expression {text!r}: {what} at position {_pos(text, n)} is not "
+        raise InputError(f"cost expression {_q(text)}: {what} at position {_pos(text, n)} is not "
                          f"allowed; use numbers, raster names, + - * /, comparisons, and/or/not "
                          f"and the functions {', '.join(FUNCTIONS)}")
 
@@ -193,6 +230,14 @@ def _check(node, text, names, used):
     if isinstance(node, ast.Constant):
         if isinstance(node.value, bool) or not isinstance(node.value, (int, float)):
             fail(f"constant {node.value!r}")
+        try:
+            finite = np.isfinite(float(node.value))
+        except OverflowError:
+            finite = False
+        if not finite:
+            raise InputError(f"cost expression {_q(text)}: the number at position "
+                             f"{_pos(text, node)} is too large (the limit is about 1.8e308); "
+                             "use a smaller cost, e.g. 1e9 for an effective barrier")
         return
     if isinstance(node, ast.Name):
         if node.id in FUNCTIONS:
@@ -201,7 +246,7 @@ def _check(node, text, names, used):
             close = difflib.get_close_matches(node.id, list(names), n=1)
             hint = f" Did you mean {close[0]!r}?" if close else ""
             known = ", ".join(names) if names else "none"
-            raise InputError(f"cost expression {text!r}: unknown raster {node.id!r} at position "
+            raise InputError(f"cost expression {_q(text)}: unknown raster {node.id!r} at position "
                              f"{_pos(text, node)}; the named rasters are: {known}.{hint}")
         if node.id not in used:
             used.append(node.id)
@@ -239,7 +284,7 @@ def _check(node, text, names, used):
         n = len(node.args)
         if n < lo or (hi is not None and n > hi):
             want = f"{lo}" if lo == hi else f"at least {lo}"
-            raise InputError(f"cost expression {text!r}: {node.func.id}() at position "
+            raise InputError(f"cost expression {_q(text)}: {node.func.id}() at position "
                              f"{_pos(text, node)} takes {want} arguments, got {n}")
         for a in node.args:
             _check(a, text, names, used)
@@ -271,19 +316,24 @@ def compile_expression(text: str, *, names) -> Expression:
     if not isinstance(text, str) or not text.strip():
         raise InputError(f"cost expression must be a non-empty string; got {text!r}")
     names = tuple(names)
+    _check_size(text)
     _scan(text.translate({ord(k): v for k, v in _SIGNS.items()}))
     # one character in, one character out, so positions stay those of *text*
     src = "".join(_SIGNS.get(ch, " " if ch in "\r\n\t" else ch) for ch in text)
     try:
         tree = ast.parse(src.strip(), mode="eval")
+    except (RecursionError, MemoryError):
+        raise InputError(f"cost expression {_q(text)} is too deeply nested to read; "
+                         "simplify it") from None
     except SyntaxError as exc:
         lead = len(src) - len(src.lstrip())
         off = (exc.offset or 1) + lead
         tok = text[off - 1:off] if 0 < off <= len(text) else "end of expression"
         if off > len(text):
             tok = "end of expression"
-        raise InputError(f"cost expression {text!r}: unexpected {tok!r} at position {off} "
+        raise InputError(f"cost expression {_q(text)}: unexpected {tok!r} at position {off} "
                          f"({exc.msg}); check the operators and parentheses") from None
+    _check_size(text, tree)
     used: list[str] = []
     # positions are reported relative to the stripped text; shift them back
     lead = len(src) - len(src.lstrip())

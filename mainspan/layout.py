@@ -453,7 +453,7 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
                         class_costs=class_costs, weights=weights, on_nodata=on_nodata,
                         sample_spacing_m=sample_spacing_m, raster_crs=raster_crs,
                         progress=(lambda d, t: say("costs", d, t)),
-                        node_id=sites.node_id)
+                        node_id=sites.node_id, refuse_negative=True)
     say("costs", 1, 1)
 
     # Node elevations: DEM, or the sites' own Z when asked (and where given).

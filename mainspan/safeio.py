@@ -470,3 +470,73 @@ def atomic_write(path, data, *, overwrite=False, what="output") -> str:
         raise DataFileError(f"cannot write {what} {path!r}: {exc.strerror or exc}; check the "
                             "folder is writable and has space") from None
     return path
+
+
+# ----------------------------------------------------------------------------- memory budget
+#: Share of the machine's physical memory a run may plan to use when --memory-limit is not given.
+DEFAULT_MEMORY_SHARE = 0.5
+_MEMORY_LIMIT = None
+_UNITS = {"": 1, "b": 1, "k": 2**10, "kb": 2**10, "kib": 2**10, "m": 2**20, "mb": 2**20,
+          "mib": 2**20, "g": 2**30, "gb": 2**30, "gib": 2**30, "t": 2**40, "tb": 2**40,
+          "tib": 2**40}
+
+
+def physical_memory_bytes():
+    """Installed memory in bytes, or None when the platform does not say."""
+    try:
+        return int(os.sysconf("SC_PAGE_SIZE")) * int(os.sysconf("SC_PHYS_PAGES"))
+    except (ValueError, OSError, AttributeError):
+        return None
+
+
+def parse_size(text, *, option="--memory-limit") -> int:
+    """Bytes from a size such as ``4G``, ``512M``, ``1.5GiB`` (binary units)."""
+    m = re.fullmatch(r"\s*([0-9]*\.?[0-9]+(?:[eE][+-]?[0-9]+)?)\s*([A-Za-z]*)\s*", str(text))
+    unit = m.group(2).lower() if m else None
+    if not m or unit not in _UNITS or unit in ("", "b"):
+        raise InputError(f"option {option}: {text!r} is not a size; give a number with a unit, "
+                         "e.g. 4G or 512M")
+    v = float(m.group(1)) * _UNITS[unit]
+    if not (v >= 2**20 and v < 2**60):
+        raise InputError(f"option {option}: {text!r} is out of range; give at least 1M")
+    return int(v)
+
+
+def set_memory_limit(n_bytes):
+    """Set (or with None reset to the default) the memory budget of this process's runs."""
+    global _MEMORY_LIMIT
+    _MEMORY_LIMIT = None if n_bytes is None else int(n_bytes)
+
+
+def memory_limit_bytes() -> int:
+    """The budget: ``--memory-limit``, else half the physical memory (4 GiB if unknown)."""
+    if _MEMORY_LIMIT is not None:
+        return _MEMORY_LIMIT
+    ram = physical_memory_bytes()
+    return int(ram * DEFAULT_MEMORY_SHARE) if ram else 4 * 2**30
+
+
+def _human(n):
+    for unit, f in (("TiB", 2**40), ("GiB", 2**30), ("MiB", 2**20)):
+        if n >= f:
+            return f"{n / f:.1f} {unit}"
+    return f"{n / 2**10:.0f} KiB"
+
+
+def check_memory(n_bytes, *, what, fix):
+    """Refuse work whose estimate exceeds the budget, before allocating anything.
+
+    Parameters
+    ----------
+    n_bytes : float
+        The estimate.
+    what : str
+        What would need it, e.g. "sampling terrain raster 'dem.tif' every 1e-06 m".
+    fix : str
+        What the user can change.
+    """
+    limit = memory_limit_bytes()
+    if not (n_bytes <= limit):
+        raise InputError(f"{what} needs about {_human(n_bytes)} of memory, more than the limit "
+                         f"of {_human(limit)} (--memory-limit; default half the installed "
+                         f"memory); {fix}")

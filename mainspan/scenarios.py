@@ -364,7 +364,8 @@ class _Workbench:
             self.land[k] = price_links(
                 xy, edges, working_crs=sites.crs, land_cost=src, cost_expression=opts["expr"],
                 class_costs=opts["classes"], weights=CostWeights(length=0.0, land=1.0),
-                on_nodata=opts["on_nodata"], raster_crs=opts["raster_crs"])
+                on_nodata=opts["on_nodata"], raster_crs=opts["raster_crs"],
+                node_id=sites.node_id, refuse_negative=True)
         return self.land[k]
 
     def elevations(self, sites_key, sites, plan):
@@ -458,16 +459,22 @@ def _assemble(bench, sites, cands, costs, elev, plan, *, name, description):
 
 
 def _stability(sites, edges, terrain, land, weights, elev, root_idx, plan, *, runs, pct, rng,
-               terrain_surface=None):
-    """Share of *runs* perturbed trees holding each candidate link."""
+               terrain_surface=None, tick=None):
+    """Share of *runs* perturbed trees holding each candidate link (``tick(done, runs)``)."""
     count = np.zeros(len(edges), dtype=np.int64)
-    for _ in range(runs):
+    for i in range(runs):
         f = rng.uniform(1.0 - pct / 100.0, 1.0 + pct / 100.0, len(edges))
         costs = combine_costs(terrain, land, weights, land_factor=f)
         tree, _, _ = _grow(sites, edges, costs, elev, root_idx, plan, certify=False,
                            terrain_surface=terrain_surface)
         count[_tree_links(tree)[2]] += 1
+        if tick is not None:
+            tick(i + 1, runs)
     return count / float(runs)
+
+
+#: Most perturbed runs per scenario (--stability): shares are then known to about 0.1 %.
+MAX_STABILITY_RUNS = 1000
 
 
 # ------------------------------------------------------------------------------ run
@@ -503,9 +510,9 @@ def run_scenarios(project, *, names=None, progress=None, stability_runs=0, pertu
     if not isinstance(project, Project):
         project = load_project(project)
     if isinstance(stability_runs, bool) or not isinstance(stability_runs, (int, np.integer)) \
-            or stability_runs < 0:
-        raise InputError(f"stability runs (--stability) must be an integer >= 0; got "
-                         f"{stability_runs!r}")
+            or not 0 <= stability_runs <= MAX_STABILITY_RUNS:
+        raise InputError(f"stability runs (--stability) must be an integer from 0 to "
+                         f"{MAX_STABILITY_RUNS}; got {stability_runs!r}")
     if not (isinstance(perturb_pct, (int, float)) and 0 <= perturb_pct < 100):
         raise InputError(f"perturb_pct (--perturb-pct) must be a percentage in [0, 100); got "
                          f"{perturb_pct!r}")
@@ -563,7 +570,8 @@ def _run_one(project, name, bench, say, stability_runs, perturb_pct, seed):
                                    rng=rng, terrain_surface=None if plan.get("terrain") is None
                                    else bench.surface(plan["terrain"], crs=sites.crs,
                                                       raster_crs=plan.get("raster_crs"),
-                                                      name="terrain"))
+                                                      name="terrain"),
+                                   tick=lambda d, t: say(f"stability {name}", d, t))
         res.runs = int(stability_runs)
         lay.links["stability"] = res.stability[lay.links["candidate_index"]]
     return res

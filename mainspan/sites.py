@@ -218,7 +218,8 @@ def read_sites(path, *, layer=None, id_field=None, role_field=None, demand_field
     x_field, y_field : str, optional
         Coordinate columns of a CSV (default ``x`` and ``y``).
     sites_crs : CRS-like, optional
-        CRS of the coordinates when the file carries none (CSV, Shapefile without .prj).
+        CRS of the coordinates: needed when the file carries none (CSV, Shapefile
+        without .prj); when given it overrides the file's own CRS.
     crs : CRS-like, optional
         Working CRS override (must be projected).
     merge_within_m : float, optional

@@ -1008,6 +1008,13 @@ class Surface:
             raise InputError(f"sample spacing must be a positive length in metres; got {spacing_m!r}")
         d = p1 - p0
         length = np.hypot(d[:, 0], d[:, 1])
+        # memory estimate before sampling (mainspan.safeio budget): stations, z, work arrays
+        from .safeio import check_memory
+        check_memory(float(np.sum(np.ceil(length / spacing_m) + 2.0)) * 40.0,
+                     what=f"sampling raster {self.path!r} every {spacing_m:g} m along "
+                     f"{len(length)} link(s)",
+                     fix="use a larger --sample-spacing-m (default half a cell) or raise "
+                     "--memory-limit")
         offsets, station = _profile_stations(length, float(spacing_m))
         if self.same_crs:
             # the geotransform is affine: stations interpolate linearly in index space too
