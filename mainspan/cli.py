@@ -298,6 +298,30 @@ def _run_plan(settings, *, quiet=False):
     return plan_layout(sites, progress=_progress(quiet), **plan_kw), out
 
 
+# project-file outputs written after the GeoPackage (each checked by preflight first)
+_EXTRA_OUTPUTS = ("dxf", "landxml", "links_csv", "quantities_csv")
+
+
+def _write_extra(lay, spec):
+    """Write the report or a hand-off file named by an OutputSpec."""
+    if spec.kind == "report":
+        from .report.html import write_report
+        write_report(lay, spec.path, overwrite=spec.overwrite)
+    elif spec.kind == "dxf":
+        from .writers.dxf import write_dxf
+        write_dxf(lay, spec.path, overwrite=spec.overwrite)
+    elif spec.kind == "landxml":
+        from .writers.landxml import write_landxml
+        write_landxml(lay, spec.path, overwrite=spec.overwrite)
+    elif spec.kind == "links_csv":
+        from .writers.tables import write_links_csv
+        write_links_csv(lay, spec.path, overwrite=spec.overwrite)
+    elif spec.kind == "quantities_csv":
+        from .writers.tables import write_quantities_csv
+        write_quantities_csv(lay, spec.path, overwrite=spec.overwrite)
+    print(f"{spec.kind:<16}{spec.path}")
+
+
 def cmd_plan(a):
     settings, proj = _settings_from(a)
     out = settings.get("output", {})
@@ -306,7 +330,12 @@ def cmd_plan(a):
                          "project file)")
     specs = preflight_outputs(a, proj, [settings],
                               [(a.out, "--out", "gpkg", "gpkg"),
-                               (a.report, "--report", "report", "report")])
+                               (a.report, "--report", "report", "report")]
+                              + [(None, "", k, k) for k in _EXTRA_OUTPUTS])
+    if any(o.kind == "quantities_csv" for o in specs) and \
+            not settings.get("design", {}).get("system"):
+        raise InputError("[output] quantities_csv needs sized pipes: set [design] system "
+                         "(pressure or gravity), or remove the key")
     gspec = specs[0]
     gpkg = gspec.path
     from .writers.gpkg import check_layers_free
@@ -317,11 +346,8 @@ def cmd_plan(a):
     _print_design(lay)
     print(f"written         {gpkg} (layers: links, nodes, run_info"
           + (", quantities" if "quantities" in lay.tables else "") + ")")
-    if len(specs) > 1:
-        from .report.html import write_report
-        rep = specs[1]
-        write_report(lay, rep.path, overwrite=rep.overwrite)
-        print(f"report          {rep.path}")
+    for spec in specs[1:]:
+        _write_extra(lay, spec)
     if lay.system:
         print(CAUTION)
     return 0

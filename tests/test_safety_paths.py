@@ -178,3 +178,21 @@ def test_binary_or_folder_project_file_is_exit_2(tmp_path, capsys, kind):
         p.write_bytes(bytes(range(256)) * 8)
     for cmd in ("plan", "check", "compare"):
         _refused([cmd, p], capsys, ["project file", "p.toml"])
+
+
+def test_project_hand_off_outputs_are_written_inside_the_folder(tmp_path, sites, capsys):
+    d = tmp_path / "proj"
+    d.mkdir()
+    p = _project(d, sites, {"gpkg": "o.gpkg", "dxf": "o.dxf", "landxml": "o.xml",
+                            "links_csv": "links.csv", "quantities_csv": "q.csv"},
+                 extra='[design]\nsystem = "pressure"\n')
+    code, out, err = run_cli(["plan", p, "--quiet"], capsys)
+    assert code == 0, err
+    for n in ("o.gpkg", "o.dxf", "o.xml", "links.csv", "q.csv"):
+        assert (d / n).stat().st_size > 0, n
+    # a second run without --overwrite refuses before computing and changes nothing
+    _refused(["plan", p, "--quiet"], capsys, ["already"], d / "o.dxf", d / "q.csv")
+    # quantities without a design is refused up front
+    p2 = _project(d, sites, {"gpkg": "o2.gpkg", "quantities_csv": "q2.csv"}, name="p2.toml")
+    _refused(["plan", p2, "--quiet"], capsys, ["quantities_csv", "[design] system"])
+    assert not (d / "o2.gpkg").exists()
