@@ -172,48 +172,57 @@ def gravity(z, demand=(0.0, 1.0, 1.0, 1.0, 1.0), length=(50.0, 50.0, 50.0, 50.0)
 
 
 def test_gravity_hand_solved_inverts_on_flat_ground():
-    # flat ground at 10 m; 200 mm pipe, 0.4 % minimum slope (RSWFS 2014), cover 0.9, drop 0.03
+    # flat ground at 10 m; 200 mm PVC SDR 35 (8 in: OD 213.4 mm, wall 213.4/35 = 6.1 mm, bore 201.2 mm),
+    # 0.4 % minimum slope (RSWFS 2014), cover 0.9 m to the OUTSIDE of the pipe, junction drop 0.03
     r = gravity([10.0] * 5)
     lf = r.link_fields
-    # hand: leaves 3 and 4 start at 10 - 0.9 - 0.2 = 8.9 and fall 0.004 x 50 = 0.2
-    #   link 2-4: 8.90 -> 8.70;  link 1-3: 8.90 -> 8.70
-    #   link 1-2: min(8.9, 8.70 - 0.03) = 8.67 -> 8.47
-    #   link 0-1: min(8.9, min(8.47, 8.70) - 0.03) = 8.44 -> 8.24
-    np.testing.assert_allclose(lf["invert_up_m"], [8.44, 8.67, 8.90, 8.90])
-    np.testing.assert_allclose(lf["invert_down_m"], [8.24, 8.47, 8.70, 8.70])
+    top = 0.2012 + 0.0061            # invert to the outside top of the pipe
+    # hand: leaves 3 and 4 start at 10 - 0.9 - 0.2073 = 8.8927 and fall 0.004 x 50 = 0.2
+    #   link 2-4: 8.8927 -> 8.6927;  link 1-3: 8.8927 -> 8.6927
+    #   link 1-2: min(8.8927, 8.6927 - 0.03) = 8.6627 -> 8.4627
+    #   link 0-1: min(8.8927, min(8.4627, 8.6927) - 0.03) = 8.4327 -> 8.2327
+    assert 10 - 0.9 - top == pytest.approx(8.8927)
+    np.testing.assert_allclose(lf["invert_up_m"], [8.4327, 8.6627, 8.8927, 8.8927])
+    np.testing.assert_allclose(lf["invert_down_m"], [8.2327, 8.4627, 8.6927, 8.6927])
     np.testing.assert_allclose(lf["slope_pct"], 0.4)
-    np.testing.assert_allclose(r.node_fields["invert_m"], [8.24, 8.44, 8.67, 8.90, 8.90])
-    np.testing.assert_allclose(lf["depth_max_m"], [1.76, 1.53, 1.30, 1.30])
+    np.testing.assert_allclose(r.node_fields["invert_m"], [8.2327, 8.4327, 8.6627, 8.8927, 8.8927])
+    np.testing.assert_allclose(lf["depth_max_m"], [1.7673, 1.5373, 1.3073, 1.3073])
     np.testing.assert_allclose(lf["cover_min_m"], [1.36, 1.13, 0.90, 0.90])
     assert lf["flow_direction"].tolist() == ["to→from"] * 4
     np.testing.assert_allclose(lf["flow_lps"], [4.0, 2.0, 1.0, 1.0])
     # capacity flowing full against fluids.open_flow.V_Manning (R = D/4)
-    v_ref = fluids.open_flow.V_Manning(0.05, 0.004, 0.013)
-    np.testing.assert_allclose(lf["capacity_lps"], v_ref * np.pi * 0.01 * 1000)
+    v_ref = fluids.open_flow.V_Manning(0.2012 / 4, 0.004, 0.013)
+    np.testing.assert_allclose(lf["capacity_lps"], v_ref * np.pi * 0.2012**2 / 4 * 1000)
     assert np.all(lf["velocity_full_mps"] >= 0.6)
-    assert r.summary["outlet_invert_m"] == [pytest.approx(8.24)]
+    assert r.summary["outlet_invert_m"] == [pytest.approx(8.2327)]
+    assert r.node_fields["structure"].tolist() == ["outlet", "manhole", "manhole", "manhole", "manhole"]
 
 
-def test_gravity_dip_in_profile_steepens_the_grade():
+def test_gravity_dip_in_profile_breaks_the_grade_at_the_dip():
     # link 0-1 (50 m, flat ends at 10 m) with the ground 1 m lower at mid-length; station from node 0
     off = np.array([0, 1, 1, 1, 1])
     r = gravity([10.0] * 5, profile_offsets=off, profile_station_m=np.array([25.0]), profile_ground_m=np.array([9.0]))
     up = r.link_fields["invert_up_m"][0]
-    # hand: clear the dip, 25 m downstream of the upstream end: S = (up - (9.0 - 0.9 - 0.2)) / 25
-    s = (up - 7.9) / 25.0
-    assert r.link_fields["slope_pct"][0] == pytest.approx(100 * s)
-    assert r.link_fields["invert_down_m"][0] == pytest.approx(up - 50 * s)
+    assert up == pytest.approx(8.4327)
+    # hand: a manhole at the dip; the pipe reaches 9.0 - 0.9 - 0.2073 = 7.8927 there, then falls at
+    # the minimum 0.4 % over the last 25 m: 7.7927 (one straight grade would end at 2 x 7.8927 - up = 7.3527)
+    assert r.link_fields["invert_down_m"][0] == pytest.approx(7.7927)
+    assert r.link_fields["slope_pct"][0] == pytest.approx(0.4)       # the flattest segment
+    assert r.link_fields["n_grade_breaks"][0] == 1
     assert r.link_fields["cover_min_m"][0] == pytest.approx(0.9)
-    assert r.link_fields["depth_max_m"][0] == pytest.approx(10.0 - (up - 50 * s))
+    assert r.link_fields["depth_max_m"][0] == pytest.approx(10.0 - 7.7927)
+    ap = r.access_points
+    k = ap["kind"] == "grade break"
+    assert ap["chainage_m"][k].tolist() == [25.0] and ap["invert_m"][k] == pytest.approx([7.8927])
 
 
 def test_gravity_follows_steep_falling_ground_and_flags_rising_ground():
     # ground falls 3 m over link 0-1 towards the outlet: the pipe keeps exactly minimum cover
     r = gravity([7.0, 10.0, 10.0, 10.0, 10.0])
     up = r.link_fields["invert_up_m"][0]
-    assert r.link_fields["invert_down_m"][0] == pytest.approx(7.0 - 1.1)
-    assert r.link_fields["slope_pct"][0] == pytest.approx(100 * (up - 5.9) / 50)
-    # outlet 8 m above the far end: everything too deep, named in the failures
+    assert r.link_fields["invert_down_m"][0] == pytest.approx(7.0 - 0.9 - 0.2073)
+    assert r.link_fields["slope_pct"][0] == pytest.approx(100 * (up - 5.8927) / 50)
+    # outlet 8 m above the far end: everything too deep (a lift station would not help), named in the failures
     r2 = gravity([18.0, 10.0, 10.0, 10.0, 10.0], settings=DesignSettings(gravity_max_depth_m=6.0))
     assert "too_deep" in r2.link_fields["checks"][0]
     assert any(f.startswith("link 1 (S–A): too_deep") for f in r2.failures)
@@ -221,18 +230,20 @@ def test_gravity_follows_steep_falling_ground_and_flags_rising_ground():
 
 
 def test_gravity_sizes_up_when_flow_exceeds_capacity():
-    # 25 L/s at the far leaf: 200 mm at 0.4 % carries 20.7 L/s, 250 mm at 0.28 % carries 31.5 L/s
+    # 25 L/s at the far leaf: 200 mm (bore 201.2) at 0.4 % carries 21.1 L/s, 250 mm (bore 251.5) at 0.28 % 32.0 L/s
     r = gravity([10.0] * 5, demand=(0.0, 0.0, 0.0, 0.0, 25.0))
     assert r.link_fields["nominal_mm"].tolist() == [250.0, 250.0, 200.0, 250.0]
-    assert r.link_fields["invert_up_m"][3] == pytest.approx(10.0 - 0.9 - 0.25)
+    # 10 in SDR 35: OD 266.7 mm, wall 7.6 mm: invert to outside top 259.1 mm
+    assert r.link_fields["invert_up_m"][3] == pytest.approx(10.0 - 0.9 - 0.2591)
     assert r.link_fields["slope_pct"][3] == pytest.approx(0.28)
     # link 1-3 (no flow) keeps the smallest pipe, crowns matched at node 1
     assert r.link_fields["capacity_lps"][0] >= 25.0
-    # no pipe big enough
+    # no pipe big enough at the minimum grade: the pipe is steepened to carry the flow, and flagged
     tiny = PipeCatalog(name=["p"], nominal_mm=[200.0], inner_mm=[200.0], roughness_mm=[0.0], hw_c=[150.0],
                        rating_m=[np.nan], cost_per_m=[1.0], material=["PVC"], manning_n=[0.013])
     r2 = gravity([10.0] * 5, demand=(0.0, 0.0, 0.0, 0.0, 25.0), settings=DesignSettings(gravity_catalog=tiny))
-    assert r2.link_fields["checks"][3].startswith("no_pipe;surcharged")
+    assert r2.link_fields["checks"][3].startswith("no_pipe") and "surcharged" not in r2.link_fields["checks"][3]
+    assert r2.link_fields["capacity_lps"][3] == pytest.approx(25.0)
 
 
 def test_gravity_reversed_link_and_profile_give_the_same_design():
@@ -249,16 +260,20 @@ def test_gravity_reversed_link_and_profile_give_the_same_design():
 
 
 def test_gravity_access_points():
-    # RSWFS 2014: access at most 120 m apart -> ceil(L / 120) - 1 intermediate points
+    # RSWFS 2014: access at most 120 m apart -> ceil(L / 120) - 1 intermediate points on flat ground
     r = gravity([10.0] * 5, length=(300.0, 240.0, 120.0, 50.0))
     assert r.link_fields["n_access_points"].tolist() == [2, 1, 0, 0]
     ap = r.access_points
-    assert ap["link"].tolist() == [0, 0, 1]
-    np.testing.assert_allclose(ap["chainage_m"], [100.0, 200.0, 120.0])
-    np.testing.assert_allclose(ap["x"], [200 / 3, 400 / 3, 275.0])
-    k = ap["link"]
-    np.testing.assert_allclose(ap["invert_m"], r.link_fields["invert_down_m"][k] + r.link_fields["slope_pct"][k] / 100 * ap["chainage_m"])
+    inside = ap["kind"] == "spacing"
+    assert ap["link"][inside].tolist() == [0, 0, 1]
+    np.testing.assert_allclose(ap["chainage_m"][inside], [100.0, 200.0, 120.0])
+    np.testing.assert_allclose(ap["x"][inside], [200 / 3, 400 / 3, 275.0])
+    k = ap["link"][inside]
+    np.testing.assert_allclose(ap["invert_m"][inside], r.link_fields["invert_down_m"][k] + r.link_fields["slope_pct"][k] / 100 * ap["chainage_m"][inside])
     assert r.summary["n_access_points"] == 3
+    # the 240 m branch arrives 0.74 m above the outgoing invert at node A: a drop manhole (> 0.6 m)
+    assert ap["kind"][~inside].tolist() == ["drop manhole"] and ap["node"][~inside].tolist() == ["A"]
+    assert r.node_fields["drop_m"][1] == pytest.approx(0.74)
 
 
 def test_gravity_needs_elevations():
@@ -300,12 +315,18 @@ def test_default_gravity_catalog_is_used_by_default():
 
 
 def test_access_point_ground_follows_the_profile():
-    # link 0-1 is 300 m with a profile point at 150 m: access points at 100 and 200 m
+    # link 0-1 is 300 m with a profile point at 150 m where the ground bends: the grade breaks there
+    # (a straight pipe would run up to 0.5 m deeper, into shored trench), then one access point
+    # halfway along each 150 m segment
     off = np.array([0, 1, 1, 1, 1])
     r = gravity([10.0, 13.0, 13.0, 13.0, 13.0], length=(300.0, 50.0, 50.0, 50.0), profile_offsets=off,
                 profile_station_m=np.array([150.0]), profile_ground_m=np.array([12.0]))
+    ap = r.access_points
+    assert ap["kind"].tolist() == ["spacing", "grade break", "spacing"]
+    np.testing.assert_allclose(ap["chainage_m"], [75.0, 150.0, 225.0])
     # hand: linear between (0, 10) and (150, 12), then (150, 12) and (300, 13)
-    np.testing.assert_allclose(r.access_points["ground_m"], [10.0 + 2.0 * 100 / 150, 12.0 + 1.0 * 50 / 150])
+    np.testing.assert_allclose(ap["ground_m"], [10.0 + 2.0 * 75 / 150, 12.0, 12.0 + 1.0 * 75 / 150])
+    np.testing.assert_allclose(ap["depth_m"], ap["ground_m"] - ap["invert_m"])
 
 
 def test_result_docstring_lists_the_fields_returned():
@@ -327,8 +348,8 @@ def test_result_docstring_lists_the_fields_returned():
     g = gravity([10.0] * 5)
     for r in (p, g):
         assert set(r.link_fields) <= names(link_doc) | {"pipe", "material", "checks", "reversed"}
-        assert set(r.node_fields) <= names(node_doc) | {"checks"}
+        assert set(r.node_fields) <= names(node_doc) | {"checks", "structure"}
         assert set(r.quantities) <= names(q_doc) | {"pipe", "material", "count", "category", "item", "unit", "quantity"}
     assert {"headloss_m", "hgl_from_m", "hgl_to_m", "pressure_min_m", "rating_m"} <= set(p.link_fields)
     assert {"invert_up_m", "invert_down_m", "slope_pct", "depth_max_m", "cover_min_m", "capacity_lps",
-            "depth_ratio", "n_access_points"} <= set(g.link_fields)
+            "depth_ratio", "n_access_points", "n_grade_breaks", "outer_mm"} <= set(g.link_fields)

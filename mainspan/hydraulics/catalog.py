@@ -53,6 +53,9 @@ class PipeCatalog:
     material : ndarray of str
     manning_n : ndarray of float
         Manning's n for gravity flow (NaN: use the design default).
+    outer_mm : ndarray of float
+        Outside diameter (NaN: not given).  Gravity design measures cover
+        to the outside of the pipe and prices the trench on it.
     """
 
     name: np.ndarray
@@ -64,6 +67,7 @@ class PipeCatalog:
     cost_per_m: np.ndarray
     material: np.ndarray
     manning_n: np.ndarray | None = None
+    outer_mm: np.ndarray | None = None   # gravity (grav12): outside diameter
 
     def __post_init__(self):
         arrays = {}
@@ -76,13 +80,16 @@ class PipeCatalog:
             raise InputError("pipe catalog is empty; give at least one pipe")
         mn = self.manning_n
         arrays["manning_n"] = np.full(p, np.nan) if mn is None else np.atleast_1d(np.asarray(mn, dtype=np.float64))
+        om = self.outer_mm
+        arrays["outer_mm"] = np.full(p, np.nan) if om is None else np.atleast_1d(np.asarray(om, dtype=np.float64))
         for f, arr in {**arrays, "material": material}.items():
             if arr.shape != (p,):
                 raise InputError(f"pipe catalog field '{f}' has {arr.size} values for {p} pipes; give one per pipe")
         if len(set(name.tolist())) != p:
             raise InputError("pipe catalog repeats a pipe name; give each pipe a unique name")
         for f, allow_nan in (("nominal_mm", False), ("inner_mm", False), ("cost_per_m", False),
-                             ("roughness_mm", True), ("hw_c", True), ("rating_m", True), ("manning_n", True)):
+                             ("roughness_mm", True), ("hw_c", True), ("rating_m", True), ("manning_n", True),
+                             ("outer_mm", True)):
             arr = arrays[f]
             ok = np.isfinite(arr) & ((arr >= 0) if f in ("roughness_mm", "cost_per_m") else (arr > 0))
             if allow_nan:
@@ -92,6 +99,10 @@ class PipeCatalog:
                 raise InputError(
                     f"pipe catalog field '{f}' of pipe '{name[bad[0]]}' is {arr[bad[0]]}; give a positive number"
                 )
+        thin = np.flatnonzero(arrays["outer_mm"] < arrays["inner_mm"])
+        if thin.size:
+            raise InputError(f"pipe catalog field 'outer_mm' of pipe '{name[thin[0]]}' is {arrays['outer_mm'][thin[0]]}, "
+                             f"below its inner_mm {arrays['inner_mm'][thin[0]]}; give the outside diameter in mm")
         order = np.lexsort((name.astype(str), arrays["cost_per_m"], arrays["inner_mm"]))
         object.__setattr__(self, "name", name[order])
         object.__setattr__(self, "material", material[order])
@@ -133,12 +144,24 @@ def default_catalog() -> PipeCatalog:
     )
 
 
-def default_gravity_catalog() -> PipeCatalog:
-    """Sewer pipe 200–900 mm nominal bore for gravity mains.
+# ---- gravity catalog (grav12) -------------------------------------------------------------------------
+#: PVC sewer pipe, ASTM D3034 SDR 35 (4-15 in): outside diameters in inches (from memory), by the metric
+#: nominal size used for it here.  Minimum wall = OD / 35 (the definition of SDR 35).
+_PVC_SDR35_OD_IN = {200: 8.400, 250: 10.500, 300: 12.500, 375: 15.300}
 
-    The nominal bore is used as the hydraulic diameter (common practice for
-    preliminary design, no single source).  PVC up to 375 mm, concrete from
-    450 mm; Manning's n 0.013 for both (Recommended Standards for Wastewater
+
+def default_gravity_catalog() -> PipeCatalog:
+    """Sewer pipe 200–900 mm nominal for gravity mains, with outside diameters.
+
+    * PVC 200–375 mm: ASTM D3034 SDR 35 pipe of 8, 10, 12 and 15 in; the
+      outside diameters (8.400, 10.500, 12.500, 15.300 in) are from memory,
+      the wall is OD / 35 (the standard dimension ratio), the bore OD − 2 ×
+      wall.  Nominal size is not bore.
+    * Concrete 450–900 mm: nominal = bore (how concrete pipe is named);
+      wall from ASTM C76 "Wall B" = bore in feet + 1 in (from memory, e.g.
+      24 in pipe, 3 in wall).
+
+    Manning's n 0.013 for both (Recommended Standards for Wastewater
     Facilities, 2014).  **Prices are invented placeholders for the demo.**
 
     Examples
@@ -146,21 +169,28 @@ def default_gravity_catalog() -> PipeCatalog:
     >>> cat = default_gravity_catalog()
     >>> cat.nominal_mm.tolist()[:3]
     [200.0, 250.0, 300.0]
+    >>> round(float(cat.outer_mm[0]), 1), round(float(cat.inner_mm[0]), 1)   # 8 in SDR 35
+    (213.4, 201.2)
     """
     d = np.array([200, 250, 300, 375, 450, 525, 600, 675, 750, 900], dtype=np.float64)
     material = np.where(d <= 375, "PVC", "concrete").astype(object)
     p = d.size
+    od_pvc = np.array([_PVC_SDR35_OD_IN.get(int(x), np.nan) * 25.4 for x in d])
+    outer = np.where(d <= 375, od_pvc, d + 2.0 * 25.4 * (d / 304.8 + 1.0))
+    inner = np.where(d <= 375, od_pvc * (1.0 - 2.0 / 35.0), d)
     return PipeCatalog(
         name=np.array([f"{m} {int(x)}" for m, x in zip(material, d)], dtype=object),
         nominal_mm=d,
-        inner_mm=d.copy(),
+        inner_mm=np.round(inner, 1),
         roughness_mm=np.where(d <= 375, 0.0015, 0.3),
         hw_c=np.where(d <= 375, 150.0, 120.0),
         rating_m=np.full(p, np.nan),
         cost_per_m=np.round(15.0 + 0.0005 * d**2, 2),
         material=material,
         manning_n=np.full(p, 0.013),
+        outer_mm=np.round(outer, 1),
     )
+# ---- end gravity catalog (grav12) ---------------------------------------------------------------------
 
 
 _REQUIRED = ("name", "nominal_mm", "inner_mm", "cost_per_m", "material")
@@ -172,7 +202,8 @@ def read_catalog(csv_path) -> PipeCatalog:
     Columns (header row, any order): ``name``, ``nominal_mm``, ``inner_mm``,
     ``cost_per_m``, ``material`` (all required); ``roughness_mm`` and/or
     ``hw_c`` and/or ``manning_n`` (at least one, per row); ``rating_m`` or
-    ``pn_bar`` (optional, empty = not a pressure pipe).
+    ``pn_bar`` (optional, empty = not a pressure pipe); ``outer_mm``
+    (optional outside diameter, for cover over gravity pipes).
 
     Raises
     ------
@@ -198,7 +229,8 @@ def read_catalog(csv_path) -> PipeCatalog:
         raise DataFileError(f"pipe catalog {path}, line 1, column 'roughness_mm': no friction column; add 'roughness_mm', 'hw_c' or 'manning_n'")
     if "rating_m" in col and "pn_bar" in col:
         raise DataFileError(f"pipe catalog {path}, line 1, column 'pn_bar': both 'rating_m' and 'pn_bar' given; keep one")
-    out = {k: [] for k in ("name", "nominal_mm", "inner_mm", "roughness_mm", "hw_c", "rating_m", "cost_per_m", "material", "manning_n")}
+    out = {k: [] for k in ("name", "nominal_mm", "inner_mm", "roughness_mm", "hw_c", "rating_m", "cost_per_m", "material", "manning_n",
+                           "outer_mm")}
     seen = {}
     body = [(i + 2, r) for i, r in enumerate(rows[1:]) if any(x.strip() for x in r)]
     if not body:
@@ -251,10 +283,18 @@ def read_catalog(csv_path) -> PipeCatalog:
             raise DataFileError(f"pipe catalog {path}, line {line}, column 'material': empty; name the material")
         for k, v in (("name", name), ("nominal_mm", nominal), ("inner_mm", inner), ("roughness_mm", rough), ("hw_c", c),
                      ("rating_m", rating), ("cost_per_m", number("cost_per_m", required=True, positive=False)),
-                     ("material", material), ("manning_n", n)):
+                     ("material", material), ("manning_n", n), ("outer_mm", _outer(number("outer_mm", required=False), inner, path, line))):
             out[k].append(v)
     return PipeCatalog(
         name=np.array(out["name"], dtype=object),
         material=np.array(out["material"], dtype=object),
         **{k: np.array(v, dtype=np.float64) for k, v in out.items() if k not in ("name", "material")},
     )
+
+
+def _outer(outer, inner, path, line):
+    """An optional outer_mm cell must not be below the bore (grav12)."""
+    if not np.isnan(outer) and outer < inner:
+        raise DataFileError(f"pipe catalog {path}, line {line}, column 'outer_mm': {outer:g} is below inner_mm {inner:g}; "
+                            "give the outside diameter in mm")
+    return outer

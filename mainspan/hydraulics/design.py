@@ -31,7 +31,8 @@ case, which is the highest pressure the pipe sees -- exceeds the pipe's
 rating).  Pressure nodes: ``low_pressure``, ``over_rating`` (against the
 lowest rating of the links at the node).
 
-Gravity links: ``no_pipe`` (no catalog pipe carries the flow flowing full),
+Gravity links: ``no_pipe`` (no catalog pipe carries the flow at its minimum
+grade at the depth the ground allows: the pipe is steepened to carry it),
 ``surcharged`` (design flow above the assigned pipe's full capacity),
 ``too_deep`` (invert deeper than the maximum anywhere along the link: a
 lift station or another route is needed), ``adverse_grade`` (grade below the
@@ -39,7 +40,12 @@ minimum for the diameter; the invert walk never produces it, the check
 guards catalogs and settings), ``low_velocity`` (velocity at the design
 flow's normal depth below the minimum -- the full-pipe minimum is already
 enforced through the minimum grade; links without flow are not flagged),
-``low_cover``.  Gravity nodes: ``too_deep``.  A root without links has a NaN
+``low_cover``, ``smaller_downstream`` (a pipe smaller than one arriving
+upstream; the design never produces it, the check guards the rule).
+Gravity nodes: ``too_deep``, ``below_outlet`` (mains reach an outlet below
+``outlet_invert_m`` and lift stations are off).  Drop manholes and lift
+stations are priced structures, not failures (see
+:mod:`mainspan.hydraulics.gravity_design`).  A root without links has a NaN
 invert.
 """
 
@@ -143,6 +149,25 @@ class DesignSettings:
         Invert drop across a junction (common practice).
     access_spacing_m : float, default=120.0
         Maximum distance between access points (400 ft, same standard).
+        Access points go where the grade breaks (dips and crests of the
+        ground) and wherever this spacing needs one; the spacing never
+        changes the inverts at the nodes.
+    drop_manhole_m : float, default=0.6
+        A junction where an incoming invert is more than this above the
+        outgoing one is a drop manhole, flagged and priced (24 in: Recommended
+        Standards for Wastewater Facilities, from memory for the clause).
+    outlet_invert_m : None, float or tuple of float, default=None
+        Fixed invert at each outlet (receiving water level), m above datum:
+        mains arriving lower are lifted there, or flagged ``below_outlet``.
+    lift_stations : bool, default=True
+        Allow lift stations where the gravity main would be too deep or where
+        lifting costs less than the deeper trench (priced; not a failure).
+    lift_efficiency : float, default=0.6
+        Wire-to-water efficiency of lift pumps (common practice for small
+        sewage pumps, no single source).
+    lift_head_allowance_m : float, default=1.5
+        Pump head above the static lift: losses in the short rising main and
+        the wet-well operating range (common practice, no single source).
 
     Pressure demand, pump and fittings
     ----------------------------------
@@ -227,6 +252,11 @@ class DesignSettings:
     gravity_max_depth_m: float = 6.0
     junction_drop_m: float = 0.03
     access_spacing_m: float = 120.0
+    drop_manhole_m: float = 0.6
+    outlet_invert_m: float | tuple | None = None
+    lift_stations: bool = True
+    lift_efficiency: float = 0.6
+    lift_head_allowance_m: float = 1.5
     # --- gravity design basis (mainspan.hydraulics.basis) ---
     gravity_basis: str = "sanitary"
     sanitary_peaking: str = "fixed"
@@ -274,6 +304,9 @@ class DesignSettings:
             "gravity_max_depth_m": ("> 0", "give the deepest invert allowed in metres"),
             "junction_drop_m": (">= 0", "use 0.03 m"),
             "access_spacing_m": ("> 0", "use 120 m"),
+            "drop_manhole_m": (">= 0", "use 0.6 m"),
+            "lift_efficiency": ("> 0", "use 0.6"),
+            "lift_head_allowance_m": (">= 0", "use 1.5 m"),
         }
         for name, (rule, fix) in rules.items():
             _check_number(name, getattr(self, name), rule, fix)
@@ -291,6 +324,17 @@ class DesignSettings:
             raise InputError(
                 f"design option 'headloss_method' is '{self.headloss_method}'; choose one of {', '.join(HEADLOSS_METHODS)}"
             )
+        if self.lift_efficiency > 1:
+            raise InputError(f"design option 'lift_efficiency' must be <= 1, got {self.lift_efficiency}; use 0.6")
+        if not isinstance(self.lift_stations, (bool, np.bool_)):
+            raise InputError(f"design option 'lift_stations' must be true or false, got {self.lift_stations!r}")
+        if self.outlet_invert_m is not None:
+            vals = np.atleast_1d(np.asarray(self.outlet_invert_m, dtype=np.float64))
+            if vals.ndim != 1 or not np.all(np.isfinite(vals)):
+                raise InputError(
+                    f"design option 'outlet_invert_m' must be a number or one number per outlet, got {self.outlet_invert_m!r}; "
+                    "give the invert in metres above datum, or None"
+                )
         if self.source_head_m is not None:
             vals = np.atleast_1d(np.asarray(self.source_head_m, dtype=np.float64))
             if vals.ndim != 1 or not np.all(np.isfinite(vals)):
@@ -371,10 +415,11 @@ class DesignResult:
         (= friction_loss_m + minor_loss_m), hgl_from_m, hgl_to_m, pressure_min_m, rating_m.  Gravity adds
         manning_n, invert_up_m, invert_down_m, slope_pct, min_slope_pct,
         depth_max_m, cover_min_m, capacity_lps, velocity_full_mps,
-        depth_ratio, n_access_points.
+        depth_ratio, n_access_points, n_grade_breaks, outer_mm.
     node_fields : dict of str to ndarray (length n)
         Always: hops_to_root, checks.  Pressure: hgl_m, pressure_head_m,
-        static_head_m.  Gravity: invert_m, depth_m.
+        static_head_m.  Gravity: invert_m, depth_m, structure ("manhole",
+        "drop manhole", "lift station", "outlet"), drop_m, lift_m.
     quantities : dict of str to ndarray
         Bill of quantities (:mod:`mainspan.hydraulics.quantities`): one row
         per catalog pipe used, then priced items (fittings, structures,
@@ -384,7 +429,9 @@ class DesignResult:
         land_cost, total_cost.
     access_points : dict of str to ndarray
         Gravity only (empty arrays otherwise): link, chainage_m (from the
-        link's from_node), x, y, ground_m, invert_m.
+        link's from_node), x, y, ground_m, invert_m; kind ("grade break",
+        "spacing" inside links; "drop manhole", "lift station" at nodes),
+        node, depth_m, drop_m, lift_m, power_kw.
     summary : dict
         Totals, source heads or outlet inverts, counts of failing checks by
         kind (``failing_checks``), ``notes`` and the ``caution`` text.
@@ -537,7 +584,7 @@ def design_network(
     ...                    demand_lps=[0.0, 2.0, 3.0], node_id=["out", "a", "b"], from_node=[0, 1], to_node=[1, 2],
     ...                    length_m=[100.0, 100.0], surface_length_m=[100.0, 100.0], roots=[0])
     >>> r.link_fields["flow_lps"].tolist(), r.link_fields["invert_up_m"].round(2).tolist()
-    ([5.0, 3.0], [9.37, 9.9])
+    ([5.0, 3.0], [9.36, 9.89])
     >>> r.link_fields["checks"].tolist()
     ['low_velocity', 'low_velocity']
 
@@ -732,13 +779,16 @@ def design_network(
             kinematic_viscosity_m2ps=nu,
         )
     else:
-        cat_used, pipe, pipe_len, trench_depth, access = design_gravity(
-            s, net, xy, elev, plan, off, st, gr, q_lps, links, nodes, flags_l, flags_n, details, summary)
+        grav = design_gravity(s, net, xy, elev, plan, off, st, gr, q_lps, links, nodes, flags_l, flags_n, details,
+                              summary, ids=ids)
+        cat_used, pipe, pipe_len, trench_depth, access = grav[:5]
 
     width = cat_used.nominal_mm[pipe] / 1000.0 + 2.0 * s.trench_side_clearance_m
     trench_len = surf if system == "pressure" else plan
     prices = s.price_table()
     trench_parts = prices.trench_parts(trench_depth, width, trench_len, bedding_m=s.bedding_m)
+    if system == "gravity":      # priced by depth band station by station along the profile (gravity_design)
+        trench_parts = grav.trench_parts
     trench_cost = sum(trench_parts.values())
     pipe_cost = cat_used.cost_per_m[pipe] * pipe_len
     links.update(
@@ -762,6 +812,9 @@ def design_network(
         fittings, energy_pv = _pressure_extras(s, prices, net, xy, elev, plan, off, st, gr, links, summary,
                                                src_flow, ids, bill_items)
     # --- end of pump duty and fittings ---
+    if system == "gravity":  # manholes, drop manholes, lift stations and their energy (gravity_design)
+        bill_items += grav.items
+        energy_pv = grav.energy_cost_pv
     quantities = bill_of_quantities(pipe_rows(cat_used, pipe, pipe_len, pipe_cost, trench_cost, land), bill_items)
     failures = []
     for kind, i, check, text in sorted(details, key=lambda t: (t[0] != "link", t[1], t[2])):
