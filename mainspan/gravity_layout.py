@@ -397,25 +397,36 @@ def depth_aware_tree(n_nodes, edges, base_cost, length_m, profile_offsets, profi
 
 
 def _node_state(res, parent, length_m, settings, prices):
-    """Depth, outgoing design flow and the carried-depth model of each node, from a design."""
+    """Start depth, outgoing design flow and the carried-depth model of each node, from a design.
+
+    The start depth of a node is the depth of the invert its outgoing pipe
+    leaves at (after a lift station, if the design put one there); a lift
+    station absorbs any depth carried into it (its extra head is small
+    against a deeper trench downstream).
+    """
     n = parent.shape[0]
-    depth = np.asarray(res.node_fields.get("depth_m", np.zeros(n)), dtype=np.float64)
-    depth = np.where(np.isfinite(depth), depth, 0.0)
-    invert = np.asarray(res.node_fields.get("invert_m", np.full(n, np.nan)), dtype=np.float64)
-    lf = res.link_fields
+    nf, lf = res.node_fields, res.link_fields
+    node_depth = np.asarray(nf.get("depth_m", np.zeros(n)), dtype=np.float64)
+    invert = np.asarray(nf.get("invert_m", np.full(n, np.nan)), dtype=np.float64)
+    ground = invert + node_depth
     child = np.flatnonzero(parent >= 0)      # the design's links, in this order
+    depth = np.where(np.isfinite(node_depth), node_depth, 0.0)
+    depth[child] = ground[child] - np.asarray(lf["invert_up_m"], dtype=np.float64)
+    depth = np.where(np.isfinite(depth), depth, 0.0)
     flow = np.zeros(n)
     flow[child] = np.asarray(lf["design_flow_lps"], dtype=np.float64)
     L = np.asarray(length_m, dtype=np.float64)
     fall = np.asarray(lf["invert_up_m"], float) - np.asarray(lf["invert_down_m"], float)
     slack = np.maximum(fall - np.asarray(lf["min_slope_pct"], float) / 100.0 * L, 0.0)
+    lifted = np.asarray(nf.get("lift_m", np.zeros(n)), dtype=np.float64)[child] > 0
+    slack = np.where(lifted, np.inf, slack)
     td = np.asarray(lf["trench_depth_m"], dtype=np.float64)
     width = np.asarray(lf["nominal_mm"], dtype=np.float64) / 1000.0 + 2.0 * settings.trench_side_clearance_m
-    d_down = depth[parent[child]]
+    d_down = np.where(np.isfinite(node_depth), node_depth, 0.0)[parent[child]]
     marginal = (prices.trench_cost(td + 1.0, width, L) - prices.trench_cost(td, width, L)
                 + prices.manhole_cost(d_down + 1.0) - prices.manhole_cost(d_down))
     full = {"slack": np.zeros(n), "marginal": np.zeros(n)}
-    full["slack"][child] = np.nan_to_num(slack, nan=0.0)
+    full["slack"][child] = np.nan_to_num(slack, nan=0.0, posinf=np.inf)
     full["marginal"][child] = np.maximum(np.nan_to_num(marginal, nan=0.0), 0.0)
     carry = CarriedDepth(down=np.asarray(parent, np.int64), invert_m=invert,
                          slack_m=full["slack"], marginal=full["marginal"])
