@@ -245,3 +245,28 @@ def test_merged_sites_keep_sum_of_c_times_a():
     assert s.area_ha.tolist() == [4.0, 2.0] and s.population.tolist() == [15.0, 1.0]
     # area-weighted C keeps sum(C A): 0.9 * 1 + 0.3 * 3 = 1.8 = 4 * 0.45
     assert s.runoff_c == pytest.approx([0.45, 0.5])
+
+
+@pytest.mark.parametrize("seed", [1, 2, 3])
+def test_tc_equals_longest_inlet_path_by_networkx(seed):
+    # Tc at a link = inlet time + the longest travel time from any catchment upstream of it;
+    # networkx walks the paths independently (shortest_path_length on the reversed tree)
+    import networkx as nx
+
+    rng = np.random.default_rng(seed)
+    n = 40
+    parent = np.array([-1] + [int(rng.integers(0, v)) for v in range(1, n)])
+    child = np.arange(1, n)
+    net = rooted_network(n, parent[child], child, roots=[0])
+    travel = rng.uniform(0.5, 4.0, n - 1)
+    has = rng.random(n) < 0.6
+    _, tc_link = times_of_concentration_min(net, has, 7.0, travel)
+    g = nx.DiGraph()
+    for k in range(net.n_links):       # edge upstream -> downstream, weighted by travel time
+        g.add_edge(int(net.to_node[k]), int(net.from_node[k]), t=float(travel[k]))
+    for k in range(net.n_links):
+        up = int(net.to_node[k])
+        sources = [v for v in nx.ancestors(g, up) | {up} if has[v]]
+        want = max((7.0 + nx.shortest_path_length(g, v, up, weight="t") for v in sources),
+                   default=-np.inf)
+        assert tc_link[k] == pytest.approx(want)
