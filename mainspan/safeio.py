@@ -72,7 +72,7 @@ EXTENSIONS = {
     "figure": (".png", ".svg", ".pdf"),
 }
 
-_TEMP_RE = re.compile(r"^\.mainspan-(\d+)-[0-9a-f]{8}(\.[A-Za-z0-9]+)?$")
+_TEMP_RE = re.compile(r"^\.mainspan-(\d+)-[0-9a-f]{8}(\.[A-Za-z0-9]+)?(-journal|-wal|-shm)?$")
 _LEGACY_TEMP_RE = re.compile(r"^\.mainspan-[A-Za-z0-9_]{8}\.(gpkg|tmp)$")
 _LEGACY_AGE_S = 3600.0
 

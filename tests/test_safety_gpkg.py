@@ -43,6 +43,18 @@ def test_overwrite_drops_every_layer_of_the_previous_run(tmp_path, sites, capsys
     ids = {desc[n] for n in ("links", "nodes", "run_info")}
     assert len(ids) == 1 and ids.pop().startswith("mainspan run ")
     assert not (desc["survey_points"] or "").startswith("mainspan run")
+    # the file is still a valid GeoPackage after the drop: SQLite's own integrity check, and
+    # every gpkg_contents / gpkg_geometry_columns row names an existing table (OGC GeoPackage
+    # Encoding Standard 1.3, 12-128r18, requirements on those tables; from memory)
+    con = sqlite3.connect(out)
+    try:
+        assert con.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
+        tables = {r[0] for r in con.execute("SELECT name FROM sqlite_master WHERE type='table'")}
+        for t in ("gpkg_contents", "gpkg_geometry_columns"):
+            assert {r[0] for r in con.execute(f"SELECT table_name FROM {t}")} <= tables
+        assert not any(t.startswith("rtree_quantities") for t in tables)
+    finally:
+        con.close()
     manifest = pyogrio.read_dataframe(out, layer="mainspan_layers")
     assert set(manifest["layer"]) == {"links", "nodes", "run_info"}
     # export --quantities now says there is no bill of quantities instead of the stale one

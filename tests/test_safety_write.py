@@ -136,14 +136,18 @@ def test_two_plans_into_one_file_never_lose_a_run_silently(tmp_path, sites):
     assert leftovers(tmp_path) == []
 
 
-@pytest.mark.parametrize("mode", [0o600, 0o644, 0o640])
+@pytest.mark.parametrize("mode", [0o600, 0o644, 0o664])
 def test_replace_keeps_file_mode(tmp_path, sites, capsys, mode):
     out, rep = tmp_path / "layout.gpkg", tmp_path / "r.html"
     args = ["plan", "--sites", sites, "--out", out, "--report", rep, "--quiet"]
     assert run_cli(args, capsys)[0] == 0
     for p in (out, rep):
         os.chmod(p, mode)
-    assert run_cli(args + ["--overwrite", "--system", "pressure"], capsys)[0] == 0
+    old = os.umask(0o077)      # a new file would get 0600: the old mode must win
+    try:
+        assert run_cli(args + ["--overwrite"], capsys)[0] == 0
+    finally:
+        os.umask(old)
     for p in (out, rep):
         assert stat.S_IMODE(os.stat(p).st_mode) == mode, p
 
@@ -189,3 +193,18 @@ def test_symlinked_output_is_written_through(tmp_path, sites, capsys):
     import pyogrio
     assert "quantities" in set(pyogrio.list_layers(target)[:, 0])
     assert leftovers(real_dir) == [] and leftovers(tmp_path) == []
+
+
+def test_stale_temps_of_dead_processes_only_are_cleaned(tmp_path):
+    from mainspan.safeio import clean_stale_temps
+    dead = subprocess.Popen([sys.executable, "-c", "pass"])
+    dead.wait()
+    mine = os.getpid()
+    names = [f".mainspan-{dead.pid}-0123abcd.gpkg", f".mainspan-{dead.pid}-0123abcd.gpkg-journal",
+             f".mainspan-{dead.pid}-89abcdef.html", f".mainspan-{mine}-0123abcd.gpkg",
+             ".mainspan.lock", ".mainspan-notes.txt"]
+    for n in names:
+        (tmp_path / n).write_text("x")
+    removed = clean_stale_temps(tmp_path)
+    assert sorted(removed) == sorted(names[:3])
+    assert leftovers(tmp_path) == sorted([names[3], names[5]])
