@@ -196,3 +196,18 @@ def test_project_hand_off_outputs_are_written_inside_the_folder(tmp_path, sites,
     p2 = _project(d, sites, {"gpkg": "o2.gpkg", "quantities_csv": "q2.csv"}, name="p2.toml")
     _refused(["plan", p2, "--quiet"], capsys, ["quantities_csv", "[design] system"])
     assert not (d / "o2.gpkg").exists()
+
+
+def test_compare_outputs_checked_like_plan(tmp_path, sites, capsys):
+    d = tmp_path / "proj"
+    d.mkdir()
+    p = _project(d, sites, {"gpkg": "../out.gpkg"},
+                 extra="[scenarios.short]\ncandidates = { method = \"knn\", k = 4 }\n")
+    _refused(["compare", p], capsys, ["[output] gpkg", "outside the project folder"])
+    assert not (tmp_path / "out_scenarios.gpkg").exists()
+    _refused(["compare", p, "--out", sites, "--overwrite"], capsys,
+             ["--out", "same file as the input sites"], sites)
+    _refused(["compare", p, "--out", d / "c.gpkg", "--report", d / "c.gpkg"], capsys,
+             ["--report", ".html"])
+    code, _, err = run_cli(["compare", p, "--out", d / "c.gpkg", "--quiet"], capsys)
+    assert code == 0, err
