@@ -20,7 +20,7 @@ IDS = ["S", "A", "B", "C", "D"]
 
 def one_pipe(rating_m=100.0):
     return PipeCatalog(name=["T100"], nominal_mm=[110.0], inner_mm=[100.0], roughness_mm=[0.01], hw_c=[140.0],
-                       rating_m=[rating_m], cost_per_m=[10.0], material=["test"])
+                       rating_m=[rating_m], cost_per_m=[10.0], material=["PVC"])
 
 
 def pressure(settings, z=(100.0, 98.0, 95.0, 97.0, 93.0), demand=(0.0, 2.0, 3.0, 1.0, 4.0), **kw):
@@ -122,7 +122,8 @@ def test_pressure_sizing_matches_independent_colebrook():
     xy = rng.random((n, 2)) * 1000
     length = 50 + rng.random(n - 1) * 200
     r = design_network("pressure", xy=xy, elevation_m=np.zeros(n), demand_lps=demand, node_id=[str(i) for i in range(n)],
-                       from_node=parent, to_node=np.arange(1, n), length_m=length, surface_length_m=length, roots=[0])
+                       from_node=parent, to_node=np.arange(1, n), length_m=length, surface_length_m=length, roots=[0],
+                       settings=DesignSettings(sizing="rule"))
     cat = default_catalog()
     # water at 20 °C: 1.0016 mPa s (ISO/TR 3666:1998) / 998.21 kg/m3 = 1.0034e-6 m2/s (from
     # memory); mainspan's 1978 correlation gives 1.0038e-6, too little to change a size here

@@ -96,7 +96,7 @@ def test_gravity_rules_hold(seed):
 @pytest.mark.parametrize("seed", range(4))
 def test_pressure_rules_hold(seed):
     case = random_case(100 + seed)
-    r = design_network("pressure", settings=DesignSettings(), **case)
+    r = design_network("pressure", settings=DesignSettings(sizing="rule"), **case)
     lf, nf = r.link_fields, r.node_fields
     # grade falls in the flow direction by the head loss; every node and profile point >= 14 m
     np.testing.assert_allclose(lf["hgl_from_m"] - lf["hgl_to_m"], lf["headloss_m"])

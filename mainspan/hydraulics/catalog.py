@@ -56,6 +56,12 @@ class PipeCatalog:
     outer_mm : ndarray of float
         Outside diameter (NaN: not given).  Gravity design measures cover
         to the outside of the pipe and prices the trench on it.
+    wall_mm : ndarray of float
+        Wall thickness used for the surge wave speed (NaN: half of nominal
+        minus inner diameter).
+    modulus_gpa : ndarray of float
+        Elastic modulus of the wall for the surge wave speed (NaN: by
+        material name, :func:`mainspan.hydraulics.sizing.material_modulus_pa`).
     """
 
     name: np.ndarray
@@ -68,6 +74,8 @@ class PipeCatalog:
     material: np.ndarray
     manning_n: np.ndarray | None = None
     outer_mm: np.ndarray | None = None   # gravity (grav12): outside diameter
+    wall_mm: np.ndarray | None = None
+    modulus_gpa: np.ndarray | None = None
 
     def __post_init__(self):
         arrays = {}
@@ -82,6 +90,9 @@ class PipeCatalog:
         arrays["manning_n"] = np.full(p, np.nan) if mn is None else np.atleast_1d(np.asarray(mn, dtype=np.float64))
         om = self.outer_mm
         arrays["outer_mm"] = np.full(p, np.nan) if om is None else np.atleast_1d(np.asarray(om, dtype=np.float64))
+        for f in ("wall_mm", "modulus_gpa"):
+            v = getattr(self, f)
+            arrays[f] = np.full(p, np.nan) if v is None else np.atleast_1d(np.asarray(v, dtype=np.float64))
         for f, arr in {**arrays, "material": material}.items():
             if arr.shape != (p,):
                 raise InputError(f"pipe catalog field '{f}' has {arr.size} values for {p} pipes; give one per pipe")
@@ -89,7 +100,7 @@ class PipeCatalog:
             raise InputError("pipe catalog repeats a pipe name; give each pipe a unique name")
         for f, allow_nan in (("nominal_mm", False), ("inner_mm", False), ("cost_per_m", False),
                              ("roughness_mm", True), ("hw_c", True), ("rating_m", True), ("manning_n", True),
-                             ("outer_mm", True)):
+                             ("outer_mm", True), ("wall_mm", True), ("modulus_gpa", True)):
             arr = arrays[f]
             ok = np.isfinite(arr) & ((arr >= 0) if f in ("roughness_mm", "cost_per_m") else (arr > 0))
             if allow_nan:
@@ -298,3 +309,8 @@ def _outer(outer, inner, path, line):
         raise DataFileError(f"pipe catalog {path}, line {line}, column 'outer_mm': {outer:g} is below inner_mm {inner:g}; "
                             "give the outside diameter in mm")
     return outer
+
+
+def pipe_wall_mm(cat: PipeCatalog) -> np.ndarray:
+    """Wall thickness per pipe: ``wall_mm`` where given, else (nominal − inner) / 2."""
+    return np.where(np.isfinite(cat.wall_mm), cat.wall_mm, (cat.nominal_mm - cat.inner_mm) / 2.0)

@@ -64,10 +64,12 @@ from .friction import water_kinematic_viscosity_m2ps
 from .gravity import MIN_SLOPE_TABLE_PCT
 from .basis import check_basis_settings, sanitary_flows, storm_flows
 from .gravity_design import design_gravity
-from .pressure import HEADLOSS_METHODS, hydraulic_grade, size_pressure
+from .pressure import HEADLOSS_METHODS
 from .fittings import place_fittings
 from .pump import pump_duty
+from .pressure_design import design_pressure
 from .quantities import Item, bill_of_quantities, pipe_rows
+from .sizing import SIZING_METHODS
 
 __all__ = ["CAUTION", "SYSTEMS", "DesignSettings", "DesignResult", "design_network"]
 
@@ -126,6 +128,39 @@ class DesignSettings:
         source meeting ``min_pressure_m`` everywhere.
     pressure_cover_m : float, default=0.9
         Cover over pressure mains, for the trench (common practice).
+
+    Pressure sizing (see :mod:`mainspan.hydraulics.sizing`)
+    -------------------------------------------------------
+    sizing : {"least-cost", "rule"}, default="least-cost"
+        "least-cost": the pipes of least pipe + trench cost (+ energy present
+        value when ``source_head_m`` is None) meeting every node's minimum
+        pressure, class and velocity limits; "rule": the cheapest pipe within
+        ``velocity_max_mps`` and ``headloss_max_m_per_km`` (the budget applies
+        to this rule only).
+    sizing_split : bool, default=True
+        Allow two consecutive sizes along one link (the linear-programming
+        form of branched-network sizing; Karmeli, Gadish & Meyers, 1968).
+    sizing_monotone : bool, default=False
+        Pipe size (nominal) never increases downstream.
+    sizing_solver : {"auto", "tree", "highs"}, default="auto"
+        "tree": the exact tree method (split, non-monotone) -- used
+        otherwise with a stated bound; "highs": scipy's HiGHS (MILP for
+        one pipe per link or monotone sizes); "auto": the tree method where
+        it is exact, HiGHS up to ``highs_max_links`` links otherwise.
+    highs_max_links : int, default=2000
+    velocity_min_mps : float, default=0.0
+        Least velocity at design flow (0: no limit; 0.3 m/s is a common
+        self-cleansing figure, no single source).
+    surge_check : bool, default=True
+        Add the Joukowsky surge (Korteweg wave speed) to the static head in
+        the pressure-class check.
+    valve_closing_time_s : float or None, default=None
+        None: sudden closure (full Joukowsky rise); a time scales the rise by
+        ``(2L/a)/t`` when slower than the pipeline period (Michaud).
+    energy_pv_per_kw : float or None, default=None
+        Present value of running one kW of shaft power over the design life;
+        None: from the price table when it has energy prices, else 0.15 per
+        kWh × 2000 h/yr over 20 years at 6 % (invented placeholders).
 
     Gravity mains
     -------------
@@ -243,6 +278,17 @@ class DesignSettings:
     min_pressure_m: float = 14.0
     source_head_m: float | tuple | None = None
     pressure_cover_m: float = 0.9
+    # --- pressure sizing (size11) ---
+    sizing: str = "least-cost"
+    sizing_split: bool = True
+    sizing_monotone: bool = False
+    sizing_solver: str = "auto"
+    highs_max_links: int = 2000
+    velocity_min_mps: float = 0.0
+    surge_check: bool = True
+    valve_closing_time_s: float | None = None
+    energy_pv_per_kw: float | None = None
+    # --- end pressure sizing ---
     gravity_catalog: PipeCatalog | None = None
     manning_n: float = 0.013
     gravity_min_diameter_mm: float = 200.0
@@ -342,6 +388,24 @@ class DesignSettings:
                     f"design option 'source_head_m' must be a number or one number per source, got {self.source_head_m!r}; "
                     "give the HGL in metres above datum, or None to solve it"
                 )
+        # --- pressure sizing (size11) ---
+        if self.sizing not in SIZING_METHODS:
+            raise InputError(f"design option 'sizing' is {self.sizing!r}; choose one of {', '.join(SIZING_METHODS)}")
+        if self.sizing_solver not in ("auto", "tree", "highs"):
+            raise InputError(f"design option 'sizing_solver' is {self.sizing_solver!r}; choose auto, tree or highs")
+        for name in ("sizing_split", "sizing_monotone", "surge_check"):
+            if not isinstance(getattr(self, name), (bool, np.bool_)):
+                raise InputError(f"design option '{name}' must be true or false, got {getattr(self, name)!r}")
+        _check_number("highs_max_links", self.highs_max_links, ">= 0", "give a number of links")
+        _check_number("velocity_min_mps", self.velocity_min_mps, ">= 0", "use 0 for no lower limit")
+        if self.velocity_min_mps >= self.velocity_max_mps:
+            raise InputError(f"design option 'velocity_min_mps' ({self.velocity_min_mps}) must be below "
+                             f"'velocity_max_mps' ({self.velocity_max_mps}); lower it or use 0")
+        for name in ("valve_closing_time_s", "energy_pv_per_kw"):
+            if getattr(self, name) is not None:
+                _check_number(name, getattr(self, name), "> 0" if name == "valve_closing_time_s" else ">= 0",
+                              "give a number, or None for the default")
+        # --- end pressure sizing ---
         tab = np.asarray(self.gravity_min_slope_table_pct, dtype=np.float64)
         if tab.ndim != 2 or tab.shape[1] != 2 or tab.shape[0] < 1 or not np.all(np.isfinite(tab)) or np.any(tab <= 0):
             raise InputError(
@@ -352,6 +416,17 @@ class DesignSettings:
             cat = getattr(self, name)
             if cat is not None and not isinstance(cat, PipeCatalog):
                 raise InputError(f"design option '{name}' must be a PipeCatalog or None, got {type(cat).__name__}; use read_catalog(path)")
+
+
+    def energy_pv_per_kw_value(self) -> float:
+        """Present value of one kW of shaft power run over the design life (see ``energy_pv_per_kw``)."""
+        if self.energy_pv_per_kw is not None:
+            return float(self.energy_pv_per_kw)
+        table = getattr(self, "price_table", None)
+        if table is not None:
+            return float(np.asarray(table().energy_cost_pv(1.0)))
+        years, rate = 20, 0.06
+        return 0.15 * 2000.0 * (1.0 - (1.0 + rate) ** -years) / rate
 
 
 #: Demand models of pressure mains (DesignSettings.demand_model).
@@ -412,13 +487,19 @@ class DesignResult:
         design_flow_lps, flow_direction, pipe, material, diameter_mm (inner),
         nominal_mm, velocity_mps, pipe_length_m, trench_depth_m, pipe_cost,
         trench_cost, land_cost, checks.  Pressure adds headloss_m
-        (= friction_loss_m + minor_loss_m), hgl_from_m, hgl_to_m, pressure_min_m, rating_m.  Gravity adds
+        (= friction_loss_m + minor_loss_m), hgl_from_m, hgl_to_m,
+        pressure_min_m, rating_m, surge_head_m, and for a link split between
+        two sizes pipe_2, diameter_2_mm and length_2_m (the downstream
+        length; "", NaN and 0 when not split -- pipe, diameter_mm and
+        nominal_mm then describe the upstream, larger pipe, velocity_mps the
+        larger velocity, rating_m the lower rating and the costs both
+        lengths).  Gravity adds
         manning_n, invert_up_m, invert_down_m, slope_pct, min_slope_pct,
         depth_max_m, cover_min_m, capacity_lps, velocity_full_mps,
         depth_ratio, n_access_points, n_grade_breaks, outer_mm.
     node_fields : dict of str to ndarray (length n)
         Always: hops_to_root, checks.  Pressure: hgl_m, pressure_head_m,
-        static_head_m.  Gravity: invert_m, depth_m, structure ("manhole",
+        static_head_m, min_pressure_m.  Gravity: invert_m, depth_m, structure ("manhole",
         "drop manhole", "lift station", "outlet"), drop_m, lift_m.
     quantities : dict of str to ndarray
         Bill of quantities (:mod:`mainspan.hydraulics.quantities`): one row
@@ -535,6 +616,7 @@ def design_network(
     area_ha=None,
     runoff_c=None,
     population=None,
+    min_pressure_m=None,
 ) -> DesignResult:
     """Orient, size and check a tree of pressure or gravity mains.
 
@@ -568,6 +650,9 @@ def design_network(
         Catchment area (ha), runoff coefficient and persons served at each
         node, for the gravity design basis (``storm`` needs the first two;
         ``sanitary`` adds the population's flow to ``demand_lps``).
+    min_pressure_m : array_like, shape (n,), optional
+        Pressure mains: each node's own minimum pressure head, m (NaN: the
+        ``settings.min_pressure_m`` default).
 
     Returns
     -------
@@ -691,106 +776,42 @@ def design_network(
     access = {k: np.zeros(0) for k in ("chainage_m", "x", "y", "ground_m", "invert_m")}
     access["link"] = np.zeros(0, np.int64)
 
+    pieces = None
     if system == "pressure":
-        cat = cat_used = s.pressure_catalog if s.pressure_catalog is not None else default_catalog()
-        need = "hw_c" if s.headloss_method == "hazen_williams" else "roughness_mm"
-        for attr in (need, "rating_m"):
-            bad = np.flatnonzero(np.isnan(getattr(cat, attr)))
-            if bad.size:
-                raise InputError(
-                    f"pipe catalog pipe '{cat.name[bad[0]]}' has no {attr}; pressure design with '{s.headloss_method}' needs it for every pipe"
-                )
-        nu = float(water_kinematic_viscosity_m2ps(s.water_temperature_c))
-        sized = size_pressure(q_lps, surf, cat, velocity_max_mps=s.velocity_max_mps, headloss_max_m_per_km=s.headloss_max_m_per_km,
-                              method=s.headloss_method, nu_m2ps=nu, minor_loss_factor=s.minor_loss_factor)
-        pipe = sized.pipe
-        if s.source_head_m is not None:
-            src = np.atleast_1d(np.asarray(s.source_head_m, dtype=np.float64))
-            if src.size not in (1, net.roots.size):
-                raise InputError(
-                    f"design option 'source_head_m' has {src.size} values for {net.roots.size} sources; give one, or one per source"
-                )
-            src_arg = src if src.size > 1 else float(src[0])
-        else:
-            src_arg = None
-        hgl, root_hgl = hydraulic_grade(net, sized.headloss_m, elev, source_head_m=src_arg, min_pressure_m=s.min_pressure_m)
-        pos = np.empty(n, np.int64)
-        pos[net.roots] = np.arange(net.roots.size)
-        # pressure along each link's profile: HGL falls linearly with distance
-        plink = np.repeat(np.arange(L), np.diff(off))
-        frac = np.where(plan[plink] > 0, st / plan[plink], 0.0)
-        hgl_s = hgl[net.from_node][plink] - sized.headloss_m[plink] * frac
-        p_min = np.minimum.reduceat(hgl_s - gr, off[:-1]) if L else np.zeros(0)
-        if src_arg is None and L:
-            # a solved source head must also serve high ground between nodes: lift each
-            # tree's grade line by its largest shortfall along the profiles
-            short = np.zeros(n)
-            np.maximum.at(short, net.root_of[net.from_node], s.min_pressure_m - p_min)
-            lift = short[net.root_of]
-            hgl = hgl + lift
-            root_hgl = root_hgl + short[net.roots]
-            p_min = p_min + lift[net.from_node]
-        head = hgl - elev
-        static = root_hgl[pos[net.root_of]] - elev
-        static_max = np.maximum.reduceat(root_hgl[pos[net.root_of[net.from_node]]][plink] - gr, off[:-1]) if L else np.zeros(0)
-        rating = cat.rating_m[pipe]
-        node_rating = np.full(n, np.inf)
-        np.minimum.at(node_rating, net.from_node, rating)
-        np.minimum.at(node_rating, net.to_node, rating)
-        tol = 1e-9
-        flags_l["no_pipe"] = sized.no_pipe
-        flags_l["low_pressure"] = p_min < s.min_pressure_m - tol
-        flags_l["over_rating"] = static_max > rating + tol
-        flags_n["low_pressure"] = head < s.min_pressure_m - tol
-        flags_n["over_rating"] = static > node_rating + tol
-        links.update(
-            flow_direction=np.full(L, FLOW_FROM_TO, dtype=object),
-            velocity_mps=sized.velocity_mps,
-            headloss_m=sized.headloss_m,
-            friction_loss_m=sized.friction_loss_m,
-            minor_loss_m=sized.minor_loss_m,
-            hgl_from_m=hgl[net.from_node],
-            hgl_to_m=hgl[net.to_node],
-            pressure_min_m=p_min,
-            rating_m=rating,
-        )
-        nodes.update(hgl_m=hgl, pressure_head_m=head, static_head_m=static)
+        # --- pressure branch (size11): mainspan/hydraulics/pressure_design.py ---
+        pmin = np.full(n, s.min_pressure_m) if min_pressure_m is None else _float_array(
+            "min_pressure_m", min_pressure_m, (n,), allow_nan=True, min_value=0.0)
+        pmin = np.where(np.isnan(pmin), s.min_pressure_m, pmin)
+        cat_used, pieces, pipe = design_pressure(
+            s, net, ids, elev, plan, surf, off, st, gr, q_lps, pmin, links, nodes, flags_l, flags_n, details, summary,
+            lambda depth, width, length: _trench_cost(s, depth, width, length), src_flow)
         pipe_len = surf.copy()
-        trench_depth = np.full(L, s.pressure_cover_m) + cat.nominal_mm[pipe] / 1000.0 + s.bedding_m
-        for k in np.flatnonzero(sized.no_pipe):
-            details.append(("link", k, "no_pipe", f"{q_lps[k]:.3g} L/s exceeds the velocity or head-loss limit of the largest pipe; add a larger pipe to the catalog or relax the limits"))
-        for k in np.flatnonzero(flags_l["low_pressure"]):
-            details.append(("link", k, "low_pressure", f"pressure falls to {p_min[k]:.1f} m along the link (< {s.min_pressure_m:g} m); raise the source head or enlarge the pipes"))
-        for k in np.flatnonzero(flags_l["over_rating"]):
-            details.append(("link", k, "over_rating", f"static head {static_max[k]:.1f} m exceeds the pipe rating {rating[k]:.1f} m; use a higher pressure class or reduce the source head"))
-        for v in np.flatnonzero(flags_n["low_pressure"]):
-            details.append(("node", v, "low_pressure", f"pressure head {head[v]:.1f} m < {s.min_pressure_m:g} m"))
-        for v in np.flatnonzero(flags_n["over_rating"]):
-            details.append(("node", v, "over_rating", f"static head {static[v]:.1f} m exceeds the rating {node_rating[v]:.1f} m of a pipe at the node"))
-        worst = int(np.argmin(head))
-        summary.update(
-            source_hgl_m=root_hgl.tolist(),
-            source_pressure_head_m=(root_hgl - elev[net.roots]).tolist(),
-            source_head_solved=s.source_head_m is None,
-            min_pressure_head_m=float(head[worst]),
-            min_pressure_node=str(ids[worst]),
-            max_static_head_m=float(static.max()),
-            headloss_method=s.headloss_method,
-            kinematic_viscosity_m2ps=nu,
-        )
+        trench_depth = np.full(L, s.pressure_cover_m) + cat_used.nominal_mm[pipe] / 1000.0 + s.bedding_m
+        # --- end pressure branch ---
     else:
         grav = design_gravity(s, net, xy, elev, plan, off, st, gr, q_lps, links, nodes, flags_l, flags_n, details,
                               summary, ids=ids)
         cat_used, pipe, pipe_len, trench_depth, access = grav[:5]
 
-    width = cat_used.nominal_mm[pipe] / 1000.0 + 2.0 * s.trench_side_clearance_m
     trench_len = surf if system == "pressure" else plan
     prices = s.price_table()
-    trench_parts = prices.trench_parts(trench_depth, width, trench_len, bedding_m=s.bedding_m)
+    if pieces is None:  # one pipe per link
+        pieces = {"link": np.arange(L), "pipe": pipe, "length_m": pipe_len, "trench_depth_m": trench_depth}
+    # lengths of one pipe each (a split pressure link has two): priced piece by piece
+    pl_, pp_ = pieces["link"], pieces["pipe"]
+    share = pieces["length_m"] / np.where(pipe_len[pl_] > 0, pipe_len[pl_], 1.0)
+    piece_width = cat_used.nominal_mm[pp_] / 1000.0 + 2.0 * s.trench_side_clearance_m
     if system == "gravity":      # priced by depth band station by station along the profile (gravity_design)
-        trench_parts = grav.trench_parts
-    trench_cost = sum(trench_parts.values())
-    pipe_cost = cat_used.cost_per_m[pipe] * pipe_len
+        piece_parts = grav.trench_parts   # one piece per gravity link
+    else:
+        piece_parts = prices.trench_parts(pieces["trench_depth_m"], piece_width, trench_len[pl_] * share,
+                                          bedding_m=s.bedding_m)
+    trench_parts = {k: np.bincount(pl_, weights=v, minlength=L) for k, v in piece_parts.items()}
+    piece_trench = sum(piece_parts.values())
+    piece_pipe = cat_used.cost_per_m[pp_] * pieces["length_m"]
+    piece_land = land[pl_] * share
+    trench_cost = np.bincount(pl_, weights=piece_trench, minlength=L)
+    pipe_cost = np.bincount(pl_, weights=piece_pipe, minlength=L)
     links.update(
         pipe=cat_used.name[pipe],
         material=cat_used.material[pipe],
@@ -815,7 +836,8 @@ def design_network(
     if system == "gravity":  # manholes, drop manholes, lift stations and their energy (gravity_design)
         bill_items += grav.items
         energy_pv = grav.energy_cost_pv
-    quantities = bill_of_quantities(pipe_rows(cat_used, pipe, pipe_len, pipe_cost, trench_cost, land), bill_items)
+    quantities = bill_of_quantities(pipe_rows(cat_used, pp_, pieces["length_m"], piece_pipe, piece_trench, piece_land),
+                                    bill_items)
     failures = []
     for kind, i, check, text in sorted(details, key=lambda t: (t[0] != "link", t[1], t[2])):
         if kind == "link":
@@ -844,6 +866,12 @@ def design_network(
     )
     return DesignResult(system=system, link_fields=links, node_fields=nodes, quantities=quantities,
                         access_points=access, summary=summary, failures=failures, fittings=fittings)
+
+
+def _trench_cost(s, depth_m, width_m, length_m):
+    """Trench price of pipe lengths by the price table in force (the same rule as the bill of quantities)."""
+    parts = s.price_table().trench_parts(depth_m, width_m, length_m, bedding_m=s.bedding_m)
+    return sum(parts.values())
 
 
 def _checks(size, flags):
