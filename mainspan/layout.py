@@ -618,7 +618,7 @@ def assemble_layout(sites, cands, costs, elev, tree, cert=None, directed=None, *
         "hops_to_root": hops,
         "cost_to_root": cost_to_root,
     }
-    for key in ("area_ha", "runoff_c", "population"):   # gravity design basis fields
+    for key in ("area_ha", "runoff_c", "population", "min_pressure_m"):   # design basis fields
         if getattr(sites, key, None) is not None:
             nodes[key] = np.asarray(getattr(sites, key), float)
     profiles = None
@@ -795,7 +795,7 @@ def _design(lay, system, design, tree):
 
 def _basis_fields(nodes):
     """The sites' design-basis columns (catchment area, runoff coefficient, population)."""
-    return {k: np.asarray(nodes[k], float) for k in ("area_ha", "runoff_c", "population")
+    return {k: np.asarray(nodes[k], float) for k in ("area_ha", "runoff_c", "population", "min_pressure_m")
             if k in nodes}
 
 

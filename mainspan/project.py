@@ -7,7 +7,7 @@ Layout of a project file (all sections optional except ``[sites]``)::
 
     [sites]        path, layer, id_field, role_field, demand_field, elevation_field,
                    x_field, y_field, sites_crs, merge_within_m,
-                   area_field, runoff_field, population_field
+                   area_field, runoff_field, population_field, min_pressure_field
     [crs]          working                       # overrides the automatic choice
     [rasters]      terrain, raster_crs, on_nodata, sample_spacing_m,
                    cost_expression, class_costs (table code -> cost per m)
@@ -43,7 +43,8 @@ SCHEMA = {
     "sites": {"path": _STR, "layer": _STR, "id_field": _STR, "role_field": _STR,
               "demand_field": _STR, "elevation_field": _STR, "x_field": _STR, "y_field": _STR,
               "sites_crs": _STR, "merge_within_m": _NUM,
-              "area_field": _STR, "runoff_field": _STR, "population_field": _STR},  # design basis
+              "area_field": _STR, "runoff_field": _STR, "population_field": _STR,  # design basis
+              "min_pressure_field": _STR},
     "crs": {"working": _STR},
     "rasters": {"terrain": _STR, "raster_crs": _STR, "on_nodata": _STR,
                 "sample_spacing_m": _NUM, "cost_expression": _STR, "class_costs": _TABLE,

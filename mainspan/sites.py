@@ -19,6 +19,9 @@ Choices made here (documented for users):
   ``area_ha``), runoff coefficient 0–1 (``runoff_field``, default
   ``runoff_c``) and persons served (``population_field``, default
   ``population``).  Each is read only when present; an empty value is 0.
+* Minimum pressure head per site, m (pressure networks): ``min_pressure_field``
+  (default a field called ``min_pressure_m``); an empty value takes the
+  design default ``min_pressure_m``.
 * Two sites closer than :data:`COINCIDENT_M` (1 mm) are *coincident*: an
   error lists the pairs unless ``merge_within_m`` is given, which merges
   every cluster of sites within that distance into its first site (lowest
@@ -65,6 +68,9 @@ class Sites:
     area_ha, runoff_c, population : ndarray of float64 or None
         Catchment area (ha), runoff coefficient and persons served per site,
         for the design basis of gravity networks; None when not given.
+    min_pressure_m : ndarray of float64 or None
+        Each site's own minimum pressure head, m (NaN: the design default);
+        None when not given.
     """
 
     xy: np.ndarray
@@ -81,6 +87,7 @@ class Sites:
     area_ha: np.ndarray | None = None
     runoff_c: np.ndarray | None = None
     population: np.ndarray | None = None
+    min_pressure_m: np.ndarray | None = None
 
     def __len__(self):
         return len(self.node_id)
@@ -201,7 +208,8 @@ def _read_table(path, layer, x_field, y_field):
 
 def read_sites(path, *, layer=None, id_field=None, role_field=None, demand_field=None,
                x_field=None, y_field=None, sites_crs=None, crs=None, merge_within_m=None,
-               elevation_field=None, area_field=None, runoff_field=None, population_field=None):
+               elevation_field=None, area_field=None, runoff_field=None, population_field=None,
+               min_pressure_field=None):
     """Read a point layer of sites and bring it into the working metric CRS.
 
     Parameters
@@ -215,6 +223,8 @@ def read_sites(path, *, layer=None, id_field=None, role_field=None, demand_field
     area_field, runoff_field, population_field : str, optional
         Catchment area (ha), runoff coefficient (0–1) and population fields
         of the gravity design basis; see the module notes for defaults.
+    min_pressure_field : str, optional
+        Each site's minimum pressure head, m (pressure networks).
     x_field, y_field : str, optional
         Coordinate columns of a CSV (default ``x`` and ``y``).
     sites_crs : CRS-like, optional
@@ -327,6 +337,18 @@ def read_sites(path, *, layer=None, id_field=None, role_field=None, demand_field
             raise InputError(f"sites {where}: site {ids[i]!r} has {raw.iloc[i]!r} in field {name!r}; "
                              f"{key} must be a number {rng}")
         basis[key] = vals
+    # each site's own minimum pressure head (pressure networks): empty -> the design default
+    if min_pressure_field is None and "min_pressure_m" in attrs.columns:
+        min_pressure_field = "min_pressure_m"
+    if min_pressure_field is not None:
+        raw = field_values(min_pressure_field, "min_pressure_field")
+        vals = np.array(pd.to_numeric(raw, errors="coerce"), dtype=float)
+        bad = np.flatnonzero(~raw.isna().to_numpy() & ~(np.isfinite(vals) & (vals >= 0)))
+        if bad.size:
+            i = int(bad[0])
+            raise InputError(f"sites {where}: site {ids[i]!r} has {raw.iloc[i]!r} in field {min_pressure_field!r}; "
+                             "the minimum pressure must be a number >= 0 (m of head) or empty for the default")
+        basis["min_pressure_m"] = vals
 
     if file_crs is None:
         given = sites_crs if sites_crs is not None else crs
@@ -360,7 +382,7 @@ def _id_text(v):
 
 
 def sites_from_arrays(xy, *, crs, node_id=None, role=None, demand_lps=None, elevation_m=None,
-                      merge_within_m=None, area_ha=None, runoff_c=None, population=None):
+                      merge_within_m=None, area_ha=None, runoff_c=None, population=None, min_pressure_m=None):
     """Build validated :class:`Sites` from arrays.
 
     Parameters
@@ -382,6 +404,8 @@ def sites_from_arrays(xy, *, crs, node_id=None, role=None, demand_lps=None, elev
     area_ha, runoff_c, population : array_like, optional
         Catchment area (ha), runoff coefficient (0–1) and persons served per
         site (gravity design basis).
+    min_pressure_m : array_like, optional
+        Each site's minimum pressure head, m (NaN: the design default).
 
     Returns
     -------
@@ -427,6 +451,11 @@ def sites_from_arrays(xy, *, crs, node_id=None, role=None, demand_lps=None, elev
                 raise InputError(f"{key} must be one number per site, >= 0"
                                  + (" and <= 1" if hi else ""))
             basis[key] = a
+    if min_pressure_m is not None:
+        a = np.asarray(min_pressure_m, float)
+        if a.shape != (n,) or (a[~np.isnan(a)] < 0).any() or np.isinf(a).any():
+            raise InputError("min_pressure_m must be one number per site, >= 0 (NaN: the design default)")
+        basis["min_pressure_m"] = a
     s = Sites(xy=xy, node_id=ids, role=role, demand=demand, elevation=z, crs=wk.crs,
               source_crs=crs, crs_reason=wk.reason, **basis)
     return _check_geometry(s, "sites", merge_within_m)
@@ -490,6 +519,11 @@ def _merge(sites: Sites, pairs):
                                          sites.runoff_c[keep])
     elif sites.runoff_c is not None:
         basis["runoff_c"] = sites.runoff_c[keep]
+    if sites.min_pressure_m is not None:
+        # merged sites: the strictest minimum pressure of the cluster (NaN only where all are)
+        pm = np.full(n, -np.inf)
+        np.fmax.at(pm, rep, np.where(np.isnan(sites.min_pressure_m), -np.inf, sites.min_pressure_m))
+        basis["min_pressure_m"] = np.where(np.isinf(pm[keep]), np.nan, pm[keep])
     return Sites(xy=sites.xy[keep], node_id=sites.node_id[keep], role=role, demand=demand,
                  elevation=sites.elevation[keep], crs=sites.crs, source_crs=sites.source_crs,
                  crs_reason=sites.crs_reason, path=sites.path, layer=sites.layer, merged=merged,
