@@ -16,10 +16,16 @@ PE_SDR11 = {32: 3.0, 40: 3.7, 50: 4.6, 63: 5.8, 75: 6.8, 90: 8.2, 110: 10.0, 125
 def test_default_catalog_dimensions_and_rating():
     cat = default_catalog()
     assert cat.nominal_mm.tolist() == [float(d) for d in PE_SDR11]
-    np.testing.assert_allclose(cat.inner_mm, [d - 2 * w for d, w in PE_SDR11.items()])
-    # SDR = OD / wall ≈ 11 for every size (the series definition, ISO 4065; walls are rounded
+    # bore at the mean OD and mean wall: ISO 11922-1 grade B OD tolerance 0.009 d (>= 0.3 mm) and grade V
+    # wall tolerance 0.1 e + 0.1 mm, both rounded up to 0.1 mm (from memory); half of each band added
+    tol_d = [max(0.3, np.ceil(round(0.009 * d * 10, 9)) / 10) for d in PE_SDR11]
+    tol_e = [np.ceil(round((0.1 * w + 0.1) * 10, 9)) / 10 for w in PE_SDR11.values()]
+    np.testing.assert_allclose(cat.inner_mm, [d + td / 2 - 2 * (w + te / 2)
+                                              for (d, w), td, te in zip(PE_SDR11.items(), tol_d, tol_e)])
+    assert cat.inner_mm[6] == pytest.approx(89.4)     # 110 mm: 110.5 - 2 x 10.55
+    # SDR = OD / minimum wall ≈ 11 for every size (the series definition, ISO 4065; walls are rounded
     # up to 0.1 mm, so 32 mm is 10.7)
-    np.testing.assert_allclose(cat.nominal_mm / ((cat.nominal_mm - cat.inner_mm) / 2), 11.0, rtol=0.035)
+    np.testing.assert_allclose(cat.nominal_mm / np.array(list(PE_SDR11.values())), 11.0, rtol=0.035)
     # PN = 20 MRS / (C (SDR - 1)) = 20 * 10 / (1.25 * 10) = 16 bar (ISO 4427-1 / ISO 12162 design
     # stress MRS/C; from memory) -> head
     pn = 20 * 10.0 / (1.25 * (11 - 1))
@@ -86,3 +92,19 @@ def test_catalog_validation():
                     rating_m=[100], cost_per_m=[1], material=["PE"])
     with pytest.raises(InputError, match="empty"):
         PipeCatalog(name=[], nominal_mm=[], inner_mm=[], roughness_mm=[], hw_c=[], rating_m=[], cost_per_m=[], material=[])
+
+
+def test_csv_bore_from_minimum_wall(tmp_path):
+    # PE: mean OD and mean wall (ISO 11922-1 tolerance grades, from memory); other materials: OD - 2 wall
+    p = write(tmp_path, "name,nominal_mm,min_wall_mm,cost_per_m,material,hw_c,pn_bar\n"
+                        "PE 110,110,10.0,14,PE100,150,16\nPVC 110,110,5.3,9,PVC,150,10\n")
+    cat = read_catalog(p)
+    got = dict(zip(cat.name, cat.inner_mm))
+    assert got["PE 110"] == pytest.approx(89.4) and got["PVC 110"] == pytest.approx(99.4)
+    assert dict(zip(cat.name, cat.wall_mm))["PE 110"] == pytest.approx(10.55)
+    p = write(tmp_path, "name,nominal_mm,cost_per_m,material,hw_c\nA,110,14,PE100,150\n")
+    with pytest.raises(DataFileError, match="'inner_mm'"):
+        read_catalog(p)
+    p = write(tmp_path, "name,nominal_mm,min_wall_mm,inner_mm,cost_per_m,material,hw_c\nA,110,60,,14,PE100,150\n")
+    with pytest.raises(DataFileError, match="line 2, column 'min_wall_mm'"):
+        read_catalog(p)

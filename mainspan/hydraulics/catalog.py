@@ -12,6 +12,18 @@ References
    Hazen–Williams C = 150 for plastic pipe.
 .. [3] Great Lakes–Upper Mississippi River Board, *Recommended Standards for
    Wastewater Facilities*, 2014 -- n = 0.013, sewer sizes 200–900 mm.
+.. [4] ISO 11922-1, thermoplastics pipes -- dimensions and tolerances: grade
+   B mean outside diameter tolerance 0.009·d_n (rounded up to 0.1 mm, at
+   least 0.3 mm); grade V wall tolerance 0.1·e + 0.1 mm (rounded up to
+   0.1 mm) -- both from memory.
+
+PE bore
+-------
+ISO 4427-2 / EN 12201-2 tabulate the *minimum* wall; a pipe as made sits
+inside the tolerance band, so its hydraulic bore is taken from the *mean*
+outside diameter and the *mean* wall (:func:`pe_mean_bore_mm`): each the
+nominal value plus half its positive tolerance [4].  A 110 mm SDR11 pipe
+(minimum wall 10.0 mm) has a mean bore of 89.4 mm, not 90.0 mm.
 """
 
 from __future__ import annotations
@@ -25,7 +37,8 @@ import numpy as np
 from ..errors import DataFileError, InputError
 from .friction import G
 
-__all__ = ["PipeCatalog", "default_catalog", "default_gravity_catalog", "read_catalog"]
+__all__ = ["PipeCatalog", "default_catalog", "default_gravity_catalog", "read_catalog", "pe_mean_bore_mm",
+           "pipe_wall_mm"]
 
 #: Water density used to turn a PN rating (bar) into head (m).
 _RHO_RATING = 1000.0
@@ -124,10 +137,39 @@ class PipeCatalog:
         return int(self.name.size)
 
 
+def _ceil_01(x):
+    return np.ceil(np.round(np.asarray(x, float) * 10.0, 9)) / 10.0
+
+
+def pe_mean_bore_mm(od_mm, min_wall_mm):
+    """Bore of a PE pipe from its nominal OD and minimum wall, at the mean of both tolerance bands.
+
+    Mean OD = d_n + ½·max(0.3, ⌈0.009·d_n⌉₀.₁); mean wall = e + ½·⌈0.1·e + 0.1⌉₀.₁
+    (ISO 11922-1 grades B and V, from memory; ⌈⌉₀.₁ rounds up to 0.1 mm).
+
+    Examples
+    --------
+    >>> float(pe_mean_bore_mm(110.0, 10.0)), float(pe_mean_bore_mm(32.0, 3.0))
+    (89.4, 25.75)
+    """
+    od = np.asarray(od_mm, float)
+    e = np.asarray(min_wall_mm, float)
+    mean_od = od + 0.5 * np.maximum(0.3, _ceil_01(0.009 * od))
+    mean_e = e + 0.5 * _ceil_01(0.1 * e + 0.1)
+    return np.round(mean_od - 2.0 * mean_e, 6)
+
+
+def pe_mean_wall_mm(min_wall_mm):
+    """Mean wall of a PE pipe from its minimum wall (ISO 11922-1 grade V, from memory)."""
+    e = np.asarray(min_wall_mm, float)
+    return np.round(e + 0.5 * _ceil_01(0.1 * e + 0.1), 6)
+
+
 def default_catalog() -> PipeCatalog:
     """PE100 SDR11 (PN16) water pipe, 32–400 mm outside diameter.
 
-    Inner diameter = OD − 2 × minimum wall (ISO 4427-2 / EN 12201-2).
+    Bore from the mean outside diameter and mean wall (:func:`pe_mean_bore_mm`)
+    of the ISO 4427-2 / EN 12201-2 minimum walls.
     Hazen–Williams C 150 for plastic pipe (NRCS standard 430).  Roughness
     0.007 mm (common practice for new PE, no single source).  Rating PN16 =
     16 bar = 163.2 m of water.  **Prices are invented placeholders for the
@@ -137,7 +179,7 @@ def default_catalog() -> PipeCatalog:
     --------
     >>> cat = default_catalog()
     >>> cat.name[0], float(cat.inner_mm[0]), round(float(cat.rating_m[0]), 1)
-    ('PE100 SDR11 32', 26.0, 163.2)
+    ('PE100 SDR11 32', 25.75, 163.2)
     """
     od = np.array([32, 40, 50, 63, 75, 90, 110, 125, 140, 160, 200, 250, 315, 400], dtype=np.float64)
     wall = np.array([3.0, 3.7, 4.6, 5.8, 6.8, 8.2, 10.0, 11.4, 12.7, 14.6, 18.2, 22.7, 28.6, 36.3])
@@ -145,7 +187,8 @@ def default_catalog() -> PipeCatalog:
     return PipeCatalog(
         name=np.array([f"PE100 SDR11 {int(d)}" for d in od], dtype=object),
         nominal_mm=od,
-        inner_mm=np.round(od - 2.0 * wall, 6),
+        inner_mm=pe_mean_bore_mm(od, wall),
+        wall_mm=pe_mean_wall_mm(wall),
         roughness_mm=np.full(p, 0.007),
         hw_c=np.full(p, 150.0),
         rating_m=np.full(p, 16.0e5 / (_RHO_RATING * G)),
@@ -204,7 +247,7 @@ def default_gravity_catalog() -> PipeCatalog:
 # ---- end gravity catalog (grav12) ---------------------------------------------------------------------
 
 
-_REQUIRED = ("name", "nominal_mm", "inner_mm", "cost_per_m", "material")
+_REQUIRED = ("name", "nominal_mm", "cost_per_m", "material")
 
 
 def read_catalog(csv_path) -> PipeCatalog:
@@ -214,7 +257,11 @@ def read_catalog(csv_path) -> PipeCatalog:
     ``cost_per_m``, ``material`` (all required); ``roughness_mm`` and/or
     ``hw_c`` and/or ``manning_n`` (at least one, per row); ``rating_m`` or
     ``pn_bar`` (optional, empty = not a pressure pipe); ``outer_mm``
-    (optional outside diameter, for cover over gravity pipes).
+    (optional outside diameter, for cover over gravity pipes).  Optional
+    ``min_wall_mm``: where ``inner_mm`` is empty the bore is derived from it
+    -- for PE pipe at the mean OD and mean wall (:func:`pe_mean_bore_mm`),
+    otherwise OD − 2 × wall.  Optional ``wall_mm`` and ``modulus_gpa`` feed
+    the surge wave speed.
 
     Raises
     ------
@@ -238,10 +285,12 @@ def read_catalog(csv_path) -> PipeCatalog:
             raise DataFileError(f"pipe catalog {path}, line 1: missing column '{c}'; the header must include {', '.join(_REQUIRED)}")
     if not ({"roughness_mm", "hw_c", "manning_n"} & col.keys()):
         raise DataFileError(f"pipe catalog {path}, line 1, column 'roughness_mm': no friction column; add 'roughness_mm', 'hw_c' or 'manning_n'")
+    if "inner_mm" not in col and "min_wall_mm" not in col:
+        raise DataFileError(f"pipe catalog {path}, line 1: missing column 'inner_mm'; give the bore, or 'min_wall_mm' to derive it")
     if "rating_m" in col and "pn_bar" in col:
         raise DataFileError(f"pipe catalog {path}, line 1, column 'pn_bar': both 'rating_m' and 'pn_bar' given; keep one")
-    out = {k: [] for k in ("name", "nominal_mm", "inner_mm", "roughness_mm", "hw_c", "rating_m", "cost_per_m", "material", "manning_n",
-                           "outer_mm")}
+    out = {k: [] for k in ("name", "nominal_mm", "inner_mm", "roughness_mm", "hw_c", "rating_m", "cost_per_m", "material",
+                           "manning_n", "outer_mm", "wall_mm", "modulus_gpa")}
     seen = {}
     body = [(i + 2, r) for i, r in enumerate(rows[1:]) if any(x.strip() for x in r)]
     if not body:
@@ -274,7 +323,19 @@ def read_catalog(csv_path) -> PipeCatalog:
             raise DataFileError(f"pipe catalog {path}, line {line}, column 'name': '{name}' already on line {seen[name]}; use unique names")
         seen[name] = line
         nominal = number("nominal_mm", required=True)
-        inner = number("inner_mm", required=True)
+        min_wall = number("min_wall_mm", required=False)
+        wall = number("wall_mm", required=False)
+        inner = number("inner_mm", required=np.isnan(min_wall))
+        if np.isnan(inner):
+            if 2 * min_wall >= nominal:
+                raise DataFileError(f"pipe catalog {path}, line {line}, column 'min_wall_mm': {min_wall} leaves no bore in "
+                                    f"{nominal} mm; check the wall")
+            if cell("material").lower().startswith(("pe", "hdpe")):
+                inner = float(pe_mean_bore_mm(nominal, min_wall))
+                wall = float(pe_mean_wall_mm(min_wall)) if np.isnan(wall) else wall
+            else:
+                inner = nominal - 2.0 * min_wall
+                wall = min_wall if np.isnan(wall) else wall
         if inner > nominal * 1.5:
             raise DataFileError(
                 f"pipe catalog {path}, line {line}, column 'inner_mm': {inner} is far above nominal {nominal}; check the units (mm)"
@@ -294,7 +355,9 @@ def read_catalog(csv_path) -> PipeCatalog:
             raise DataFileError(f"pipe catalog {path}, line {line}, column 'material': empty; name the material")
         for k, v in (("name", name), ("nominal_mm", nominal), ("inner_mm", inner), ("roughness_mm", rough), ("hw_c", c),
                      ("rating_m", rating), ("cost_per_m", number("cost_per_m", required=True, positive=False)),
-                     ("material", material), ("manning_n", n), ("outer_mm", _outer(number("outer_mm", required=False), inner, path, line))):
+                     ("material", material), ("manning_n", n),
+                     ("outer_mm", _outer(number("outer_mm", required=False), inner, path, line)), ("wall_mm", wall),
+                     ("modulus_gpa", number("modulus_gpa", required=False))):
             out[k].append(v)
     return PipeCatalog(
         name=np.array(out["name"], dtype=object),

@@ -265,6 +265,16 @@ def link_hulls(loss_m, cost, admissible):
 # Node arrays: ln length, sl slope, lc/rc children, pr priority, cnt size,
 # sln sum of lengths, sls sum of length*slope, lz pending slope add for the children.
 
+@numba.njit(cache=True)
+def _prio(i):  # pragma: no cover - compiled
+    """A deterministic pseudo-random priority for node i (splitmix64 of its id)."""
+    z = np.uint64(i) + np.uint64(0x9E3779B97F4A7C15)
+    z = (z ^ (z >> np.uint64(30))) * np.uint64(0xBF58476D1CE4E5B9)
+    z = (z ^ (z >> np.uint64(27))) * np.uint64(0x94D049BB133111EB)
+    z = z ^ (z >> np.uint64(31))
+    return float(z >> np.uint64(11)) * (1.0 / 9007199254740992.0)
+
+
 @numba.njit(cache=True, inline="always")
 def _apply(sl, sls, sln, lz, i, c):  # pragma: no cover - compiled
     if i >= 0:
@@ -394,6 +404,7 @@ def _split_pos(ln, sl, lc, rc, pr, cnt, sln, sls, lz, path, t, p, nxt):  # pragm
     rroot = -1
     la = -1
     ra = -1
+    cut = -1
     top = 0
     while t >= 0:
         _push(sl, sls, sln, lz, lc, rc, t)
@@ -417,16 +428,18 @@ def _split_pos(ln, sl, lc, rc, pr, cnt, sln, sls, lz, path, t, p, nxt):  # pragm
             p -= left + ln[t]
             t = rc[t]
         else:
-            # cut t: its first part stays in t (left side), the rest becomes node u (right side)
+            # cut t: its first part stays in t (left side); the rest becomes a new single node u
+            # joined in front of the right side afterwards (a fresh priority keeps the treap balanced)
             u = nxt
             nxt += 1
             ln[u] = ln[t] - (p - left)
             ln[t] = p - left
             sl[u] = sl[t]
-            pr[u] = pr[t]
+            pr[u] = _prio(u)
             lz[u] = 0.0
             lc[u] = -1
-            rc[u] = rc[t]
+            rc[u] = -1
+            tail = rc[t]
             rc[t] = -1
             if la < 0:
                 lroot = t
@@ -434,19 +447,20 @@ def _split_pos(ln, sl, lc, rc, pr, cnt, sln, sls, lz, path, t, p, nxt):  # pragm
                 rc[la] = t
             la = t
             if ra < 0:
-                rroot = u
+                rroot = tail
             else:
-                lc[ra] = u
-            ra = u
-            path[top] = u
-            top += 1
+                lc[ra] = tail
+            cut = u
             break
     if la >= 0:
         rc[la] = -1
-    if ra >= 0:
+    if ra >= 0 and cut < 0:
         lc[ra] = -1
     for i in range(top - 1, -1, -1):
         _pull(ln, sl, lc, rc, cnt, sln, sls, path[i])
+    if cut >= 0:
+        _pull(ln, sl, lc, rc, cnt, sln, sls, cut)
+        rroot = _join(ln, sl, lc, rc, pr, cnt, sln, sls, lz, path, cut, rroot)
     return lroot, rroot, nxt
 
 
@@ -494,7 +508,6 @@ def _tree_dp(n, order, parent, parent_link, choff, children, is_root, req,
     rc = np.empty(cap, np.int64)
     cnt = np.empty(cap, np.int64)
     path = np.empty(8192, np.int64)
-    seed = np.uint64(0x9E3779B97F4A7C15)
     nxt = 0
     Tn = np.full(n, -1, np.int64)
     X0 = np.zeros(n)
@@ -583,10 +596,7 @@ def _tree_dp(n, order, parent, parent_link, choff, children, is_root, req,
                         # beyond the end of T (slope 0 there): g's segment alone
                         w = nxt
                         nxt += 1
-                        seed ^= seed << np.uint64(13)
-                        seed ^= seed >> np.uint64(7)
-                        seed ^= seed << np.uint64(17)
-                        pr[w] = float(seed >> np.uint64(11)) * (1.0 / 9007199254740992.0)
+                        pr[w] = _prio(w)
                         ln[w] = gl[jj] - got
                         sl[w] = gs[jj]
                         lz[w] = 0.0
@@ -641,10 +651,7 @@ def _tree_dp(n, order, parent, parent_link, choff, children, is_root, req,
             pstart[i] = x0 + (sln[A] if A >= 0 else 0.0)
             w = nxt
             nxt += 1
-            seed ^= seed << np.uint64(13)
-            seed ^= seed >> np.uint64(7)
-            seed ^= seed << np.uint64(17)
-            pr[w] = float(seed >> np.uint64(11)) * (1.0 / 9007199254740992.0)
+            pr[w] = _prio(w)
             ln[w] = dl
             sl[w] = s
             lz[w] = 0.0
