@@ -268,3 +268,27 @@ def test_min_pressure_field_reaches_the_design(tmp_path):
     p.write_text("id,x,y,role,q,pmin\nS,0,0,source,0,\nA,300,0,demand,2,high\n")
     with pytest.raises(InputError, match="'A'.*'pmin'"):
         read_sites(p, sites_crs="EPSG:32633", demand_field="q", min_pressure_field="pmin")
+
+
+def test_design_variants_one_pipe_per_link_and_monotone_sizes():
+    # HiGHS solves these variants inside design_network (sizing_solver auto, small tree)
+    case = tree_case(5, n=25)
+    base = design_network("pressure", settings=DesignSettings(), **case)
+    whole = design_network("pressure", settings=DesignSettings(sizing_split=False), **case)
+    assert whole.summary["sizing_solver"] == "highs" and whole.failures == []
+    assert set(whole.link_fields["pipe_2"]) == {""}
+    assert whole.summary["sizing_optimum"] >= base.summary["sizing_optimum"] - 1e-6
+    mono = design_network("pressure", settings=DesignSettings(sizing_monotone=True), **case)
+    assert mono.failures == []
+    lf = mono.link_fields
+    nom = dict(zip(default_catalog().name, default_catalog().nominal_mm))
+    small = [min(nom[a], nom.get(b, np.inf)) for a, b in zip(lf["pipe"], lf["pipe_2"])]
+    large = [max(nom[a], nom.get(b, -np.inf)) for a, b in zip(lf["pipe"], lf["pipe_2"])]
+    link_to = {int(t): k for k, t in enumerate(lf["to_node"])}
+    for k, f in enumerate(lf["from_node"]):
+        if int(f) in link_to:   # the link feeding this one must be at least as large
+            assert small[link_to[int(f)]] >= large[k]
+    # the tree method on a large tree repairs instead (forced here with highs_max_links=0)
+    rep = design_network("pressure", settings=DesignSettings(sizing_monotone=True, highs_max_links=0), **case)
+    assert rep.summary["sizing_solver"] == "tree" and rep.failures == []
+    assert any("not proven optimal" in t for t in rep.summary["sizing_notes"])
