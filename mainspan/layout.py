@@ -739,6 +739,21 @@ def _remap_tree(tree_k, keep):
     return replace(tree_k, parent_edge=pe)
 
 
+def _surface_share(lay, design):
+    """Land-use classes each link crosses (``DesignSettings.surface_raster``), CSR by link; None without one."""
+    path = getattr(design, "surface_raster", None)
+    if not path or not lay.n_links:
+        return None
+    from .surfaces import open_surface
+    surf = open_surface(path, working_crs=lay.crs, name="surface_raster")
+    try:
+        off, rows, cols, length, _ = surf.traverse(lay.node_xy[lay.link_ends[:, 0]],
+                                                   lay.node_xy[lay.link_ends[:, 1]])
+        return off, surf.gather_cells(rows, cols), length
+    finally:
+        surf.close()
+
+
 def _design(lay, system, design, tree):
     from .hydraulics import DesignSettings, design_network
 
@@ -759,7 +774,7 @@ def _design(lay, system, design, tree):
         profile_station_m=None if p is None else p.station_m,
         profile_ground_m=None if p is None else p.ground_m,
         land_cost=None if land is None else np.asarray(land, float),
-        settings=design, **_basis_fields(lay.nodes))
+        settings=design, surface_share=_surface_share(lay, design), **_basis_fields(lay.nodes))
     ident = ("link_id", "from_node", "to_node", "grow_order", "candidate_index", "node_id",
              "role", "demand_lps", "elevation_m", "parent_node")
     for k_, v in res.link_fields.items():

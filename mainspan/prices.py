@@ -273,7 +273,7 @@ class PriceTable:
                          for c in cls.ravel()], dtype=object)
         return np.array([table.get(k, table["default"]) for k in keys], float).reshape(cls.shape)
 
-    def trench_parts(self, depth_m, width_m, length_m, surface_class=None, *, bedding_m=0.1):
+    def trench_parts(self, depth_m, width_m, length_m, surface_class=None, *, bedding_m=0.1, reinstatement_per_m2=None):
         """Trench cost split into excavation, shoring, bedding and reinstatement (arrays).
 
         Parameters
@@ -286,6 +286,10 @@ class PriceTable:
             Surface class per trench (land-use code or name); None: ``default``.
         bedding_m : float, default=0.1
             Thickness of the bedding layer, m.
+        reinstatement_per_m2 : array_like or None
+            Reinstatement rate per trench, replacing the class lookup (e.g. a
+            length-weighted mean over the surfaces a link crosses, see
+            :meth:`mixed_reinstatement_rate`).
         """
         d, w, L = np.broadcast_arrays(*(np.asarray(a, float) for a in (depth_m, width_m, length_m)))
         plan = w * L
@@ -294,8 +298,40 @@ class PriceTable:
             "excavation": self.excavation_cost_per_m2(d) * plan,
             "shoring": np.where(deep, 2.0 * d * L * self.shoring_per_m2, 0.0),
             "bedding": self.bedding_per_m3 * plan * bedding_m,
-            "reinstatement": self.reinstatement_rate(surface_class, d.shape) * plan,
+            "reinstatement": (self.reinstatement_rate(surface_class, d.shape) if reinstatement_per_m2 is None
+                              else np.asarray(reinstatement_per_m2, float)) * plan,
         }
+
+    def mixed_reinstatement_rate(self, offsets, surface_class, length_m):
+        """Length-weighted reinstatement rate per trench over the surface classes it crosses.
+
+        Parameters
+        ----------
+        offsets : array_like of int, shape (L + 1,)
+            CSR offsets: trench ``k`` crosses pieces ``offsets[k]:offsets[k+1]``.
+        surface_class : array_like, one per piece
+            Class code of each piece (NaN or unknown: the ``default`` class).
+        length_m : array_like, one per piece
+            Length of each piece.
+
+        Examples
+        --------
+        >>> float(default_prices().mixed_reinstatement_rate([0, 2], [1, 5], [90.0, 10.0])[0])   # 0.9*4 + 0.1*65
+        10.1
+        """
+        off = np.asarray(offsets, np.int64)
+        cls = np.asarray(surface_class, float)
+        ln = np.asarray(length_m, float)
+        codes = np.where(np.isfinite(cls), cls, -1.0)
+        table = dict(self.reinstatement_per_m2)
+        uniq, inv = np.unique(codes, return_inverse=True)
+        rate_u = np.array([table.get(str(int(c)), table["default"]) if c >= 0 and float(c).is_integer()
+                           else table["default"] for c in uniq], float)
+        piece = np.repeat(np.arange(off.size - 1), np.diff(off))
+        L = off.size - 1
+        tot = np.bincount(piece, weights=ln, minlength=L)
+        wsum = np.bincount(piece, weights=ln * rate_u[inv.ravel()] if ln.size else ln, minlength=L)
+        return np.where(tot > 0, wsum / np.where(tot > 0, tot, 1.0), table["default"])
 
     def trench_cost(self, depth_m, width_m, length_m, surface_class=None, *, bedding_m=0.1):
         """Total trench cost: excavation + shoring + bedding + reinstatement.

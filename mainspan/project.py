@@ -64,7 +64,7 @@ SCHEMA = {
 _PATH_KEYS = {("sites", "path"), ("rasters", "terrain"), ("output", "gpkg"), ("output", "report"),
               ("output", "dxf"), ("output", "landxml"), ("output", "links_csv"),
               ("output", "quantities_csv"), ("design", "catalog"),
-              ("design", "prices")}
+              ("design", "prices"), ("design", "surface_raster")}
 
 
 def _dataclass_schema(cls):

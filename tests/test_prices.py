@@ -153,3 +153,30 @@ def test_design_uses_the_table():
         10.0 * width * base.link_fields["trench_depth_m"][0] * 100)
     assert "PLACEHOLDER" in base.summary["prices"]
     assert isinstance(DesignSettings().price_table(), PriceTable)
+
+
+def test_reinstatement_by_land_use_raster(tmp_path):
+    import rasterio
+    from rasterio.transform import from_origin
+
+    from mainspan.layout import plan_layout
+    from mainspan.sites import read_sites
+    from tests.conftest import write_points
+
+    # 10 m cells, class 1 (cropland) everywhere but a road strip (class 5) from x = 512100 to 512120
+    cls = np.ones((30, 40), np.uint8)
+    cls[:, 10:12] = 5
+    ras = tmp_path / "landuse.tif"
+    with rasterio.open(ras, "w", driver="GTiff", width=40, height=30, count=1, dtype="uint8", nodata=0,
+                       crs="EPSG:32633", transform=from_origin(512000, 5120300, 10, 10)) as dst:
+        dst.write(cls, 1)
+    sites = write_points(tmp_path / "s.gpkg", [[512050, 5120155], [512150, 5120155], [512050, 5120255]],
+                         fields={"id": ["S", "E", "N"], "role": ["source", "demand", "demand"], "q": [0, 1.0, 1.0]})
+    lay = plan_layout(read_sites(sites, id_field="id", role_field="role", demand_field="q"), system="pressure",
+                      design={"surface_raster": str(ras)})
+    rate = dict(zip(np.asarray(lay.nodes["node_id"])[lay.link_ends[:, 1]], lay.links["reinstatement_per_m2"]))
+    # by hand: the link east crosses 20 m of road in 100 m -> (80 x 4 + 20 x 65) / 100; the link north is all cropland
+    assert rate["E"] == pytest.approx((80 * 4 + 20 * 65) / 100) and rate["N"] == pytest.approx(4.0)
+    width = np.asarray(lay.links["nominal_mm"]) / 1000 + 0.6
+    want = float(np.sum(np.asarray(lay.links["reinstatement_per_m2"]) * width * np.asarray(lay.links["length_m"])))
+    assert lay.design.summary["trench_breakdown"]["reinstatement"] == pytest.approx(want)

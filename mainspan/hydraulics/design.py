@@ -240,6 +240,13 @@ class DesignSettings:
     max_service_pressure_m : float or None, default=None
         Pressure head above which a pressure-reducing valve is placed;
         None places none.
+    surface_raster : str or None, default=None
+        A land-use class raster (e.g. the demo's ``landuse.tif``): the
+        trench reinstatement of each link is priced by the length-weighted
+        mean of the price table's rates for the classes it crosses (codes
+        not listed and nodata: the ``default`` class).  Read by
+        :func:`mainspan.layout.plan_layout`; ``design_network`` takes the
+        crossings as ``surface_share``.
 
     Gravity design basis (see :mod:`mainspan.hydraulics.basis`)
     -----------------------------------------------------------
@@ -322,6 +329,7 @@ class DesignSettings:
     fitting_min_prominence_m: float = 1.0
     thrust_bend_angle_deg: float = 11.25
     max_service_pressure_m: float | None = None
+    surface_raster: str | None = None
     # --- end of pressure demand, pump and fittings ---
 
     def price_table(self) -> PriceTable:
@@ -496,7 +504,8 @@ class DesignResult:
         lengths).  Gravity adds
         manning_n, invert_up_m, invert_down_m, slope_pct, min_slope_pct,
         depth_max_m, cover_min_m, capacity_lps, velocity_full_mps,
-        depth_ratio, n_access_points, n_grade_breaks, outer_mm.
+        depth_ratio, n_access_points, n_grade_breaks, outer_mm.  With
+        ``surface_share``: reinstatement_per_m2.
     node_fields : dict of str to ndarray (length n)
         Always: hops_to_root, checks.  Pressure: hgl_m, pressure_head_m,
         static_head_m, min_pressure_m.  Gravity: invert_m, depth_m, structure ("manhole",
@@ -617,6 +626,7 @@ def design_network(
     runoff_c=None,
     population=None,
     min_pressure_m=None,
+    surface_share=None,
 ) -> DesignResult:
     """Orient, size and check a tree of pressure or gravity mains.
 
@@ -653,6 +663,9 @@ def design_network(
     min_pressure_m : array_like, shape (n,), optional
         Pressure mains: each node's own minimum pressure head, m (NaN: the
         ``settings.min_pressure_m`` default).
+    surface_share : tuple of (offsets, class_code, length_m), optional
+        Surface classes each link crosses (CSR by link, in the given link
+        order): reinstatement is priced by their length-weighted rate.
 
     Returns
     -------
@@ -801,11 +814,23 @@ def design_network(
     pl_, pp_ = pieces["link"], pieces["pipe"]
     share = pieces["length_m"] / np.where(pipe_len[pl_] > 0, pipe_len[pl_], 1.0)
     piece_width = cat_used.nominal_mm[pp_] / 1000.0 + 2.0 * s.trench_side_clearance_m
+    reinstate = None
+    if surface_share is not None:   # reinstatement by the land-use classes each link crosses (price11)
+        sh_off, sh_cls, sh_len = surface_share
+        if np.shape(sh_off) != (L + 1,):
+            raise InputError(f"design input 'surface_share' must have {L + 1} offsets, one CSR row per link")
+        reinstate = prices.mixed_reinstatement_rate(sh_off, sh_cls, sh_len)
+        links["reinstatement_per_m2"] = reinstate
     if system == "gravity":      # priced by depth band station by station along the profile (gravity_design)
-        piece_parts = grav.trench_parts   # one piece per gravity link
+        piece_parts = dict(grav.trench_parts)   # one piece per gravity link
+        if reinstate is not None:   # gravity_design priced the default class: rescale to the crossed classes
+            base = dict(prices.reinstatement_per_m2)["default"]
+            piece_parts["reinstatement"] = (piece_parts["reinstatement"] * reinstate / base if base > 0
+                                            else reinstate * piece_width * trench_len)
     else:
         piece_parts = prices.trench_parts(pieces["trench_depth_m"], piece_width, trench_len[pl_] * share,
-                                          bedding_m=s.bedding_m)
+                                          bedding_m=s.bedding_m,
+                                          reinstatement_per_m2=None if reinstate is None else reinstate[pl_])
     trench_parts = {k: np.bincount(pl_, weights=v, minlength=L) for k, v in piece_parts.items()}
     piece_trench = sum(piece_parts.values())
     piece_pipe = cat_used.cost_per_m[pp_] * pieces["length_m"]
