@@ -497,11 +497,11 @@ class DesignResult:
         trench_cost, land_cost, checks.  Pressure adds headloss_m
         (= friction_loss_m + minor_loss_m), hgl_from_m, hgl_to_m,
         pressure_min_m, rating_m, surge_head_m, and for a link split between
-        two sizes pipe_2, diameter_2_mm and length_2_m (the downstream
-        length; "", NaN and 0 when not split -- pipe, diameter_mm and
-        nominal_mm then describe the upstream, larger pipe, velocity_mps the
-        larger velocity, rating_m the lower rating and the costs both
-        lengths).  Gravity adds
+        two sizes pipe_2, diameter_2_mm, velocity_2_mps and length_2_m (the
+        downstream length; "", NaN, NaN and 0 when not split -- pipe,
+        diameter_mm, nominal_mm and velocity_mps then describe the upstream,
+        larger pipe, rating_m is the lower rating, surge_head_m the larger
+        surge and the costs cover both lengths).  Gravity adds
         manning_n, invert_up_m, invert_down_m, slope_pct, min_slope_pct,
         depth_max_m, cover_min_m, capacity_lps, velocity_full_mps,
         depth_ratio, n_access_points, n_grade_breaks, outer_mm.  With

@@ -214,7 +214,7 @@ def design_pressure(s, net, ids, elev, plan, surf, off, st, gr, q_lps, node_pmin
     flags_n["over_rating"] = static > node_rating + tol
     links.update(
         flow_direction=np.full(L, FLOW_FROM_TO, dtype=object),
-        velocity_mps=np.maximum(v1, v2),
+        velocity_mps=v1,
         headloss_m=link_loss,
         friction_loss_m=link_loss / (1.0 + s.minor_loss_factor),
         minor_loss_m=link_loss - link_loss / (1.0 + s.minor_loss_factor),
@@ -225,6 +225,7 @@ def design_pressure(s, net, ids, elev, plan, surf, off, st, gr, q_lps, node_pmin
         surge_head_m=np.maximum(surge1, surge2),
         pipe_2=np.where(has2, cat.name[q2], "").astype(object),
         diameter_2_mm=np.where(has2, cat.inner_mm[q2], np.nan),
+        velocity_2_mps=np.where(has2, v2, np.nan),
         length_2_m=f2 * surf,
     )
     nodes.update(hgl_m=hgl, pressure_head_m=head, static_head_m=static, min_pressure_m=node_pmin.copy())
