@@ -25,7 +25,12 @@ Arc price (flow from the upstream end ``u`` to the downstream end)
   (``trench_cost`` of the price table: excavation by depth band and
   shoring below 1.5 m; width = nominal size + 2 × side clearance; depth to
   the bottom of the bedding) + the manhole at ``u`` and the access points
-  the spacing requires, priced by their depth (``manhole_cost``).
+  the spacing requires, priced by their depth (``manhole_cost``);
+* where the design may use lift stations (``lift_stations``), the arc
+  takes the cheaper of gravity from the depth the flow arrives at and a
+  lift station at ``u`` back to minimum cover (station + energy present
+  value for ``ρ g Q H / η``, H = lift + ``lift_head_allowance_m``);
+* plus the depth the arc hands on downstream (:class:`CarriedDepth`).
 
 Rounds
 ------
@@ -228,12 +233,13 @@ def depth_arc_costs(edges, base_cost, length_m, profile_offsets, profile_station
     cover = s.gravity_cover_m
     spacing = s.access_spacing_m
 
-    def price(up, s_up, z_up):
-        # up: upstream node per link; s_up: stations from the upstream end; z_up: its ground
+    def price(up, s_up, z_up, start):
+        # up: upstream node per link; s_up: stations from the upstream end; z_up: its ground;
+        # start: depth to invert the pipe must start at, at least
         inv_up = np.empty((m, P))
         grade = np.empty((m, P))
         for j in range(P):
-            iu = z_up - np.maximum(d0[up], cover + outer[j])
+            iu = z_up - np.maximum(start, cover + outer[j])
             with np.errstate(divide="ignore", invalid="ignore"):
                 need = np.where(s_up > 1e-9, (iu[link] - (g - cover - outer[j])) / s_up, -np.inf)
             grade[:, j] = np.maximum(smin[j], np.maximum.reduceat(need, starts))
@@ -255,14 +261,31 @@ def depth_arc_costs(edges, base_cost, length_m, profile_offsets, profile_station
         manholes = (prices.manhole_cost(z_up - iu) + n_access * prices.manhole_cost(mean_depth - s.bedding_m))
         return base + pipe_cost[pick] * L + trench + manholes, iu - sl * L
 
+    lifts = bool(getattr(s, "lift_stations", False))
+
+    def cheaper(up, s_up, z_up):
+        # gravity from the depth the flow arrives at, or (when lift stations are allowed) a
+        # lift at the upstream node back to minimum cover: whichever costs less
+        cost, arrive = price(up, s_up, z_up, d0[up])
+        if not lifts:
+            return cost, arrive
+        lift_m = np.maximum(d0[up] - (cover + outer[0]), 0.0)
+        head = lift_m + getattr(s, "lift_head_allowance_m", 1.5)
+        kw = np.where(lift_m > 0, 9.81 * q[up] * head / getattr(s, "lift_efficiency", 0.6), 0.0)
+        extra = np.asarray(prices.pump_station_cost(kw), float) + np.asarray(prices.energy_cost_pv(kw), float)
+        cost_l, arrive_l = price(up, s_up, z_up, np.zeros(m))
+        cost_l = cost_l + np.where(kw > 0, extra, np.inf)
+        take = cost_l < cost
+        return np.where(take, cost_l, cost), np.where(take, arrive_l, arrive)
+
     z_first = g[starts]
     z_last = g[off[1:] - 1]
     u, v = e[:, 0], e[:, 1]
     tails = np.empty(2 * m, np.int64)
     heads = np.empty(2 * m, np.int64)
     weights = np.empty(2 * m, np.float64)
-    w_vu, inv_at_u = price(v, L[link] - st, z_last)      # flow v -> u
-    w_uv, inv_at_v = price(u, st, z_first)               # flow u -> v
+    w_vu, inv_at_u = cheaper(v, L[link] - st, z_last)      # flow v -> u
+    w_uv, inv_at_v = cheaper(u, st, z_first)               # flow u -> v
     if carry is not None:
         w_vu = w_vu + carry.cost(u, inv_at_u - s.junction_drop_m)
         w_uv = w_uv + carry.cost(v, inv_at_v - s.junction_drop_m)
@@ -399,10 +422,12 @@ def depth_aware_tree(n_nodes, edges, base_cost, length_m, profile_offsets, profi
 def _node_state(res, parent, length_m, settings, prices):
     """Start depth, outgoing design flow and the carried-depth model of each node, from a design.
 
-    The start depth of a node is the depth of the invert its outgoing pipe
-    leaves at (after a lift station, if the design put one there); a lift
-    station absorbs any depth carried into it (its extra head is small
-    against a deeper trench downstream).
+    With lift stations allowed, the start depth of a node is the depth the
+    flow arrives at (its lowest invert), and each arc chooses between
+    gravity from there and a lift back to minimum cover; without, it is the
+    depth the outgoing pipe leaves at.  A lift station absorbs any depth
+    carried into it (its extra head is small against a deeper trench
+    downstream).
     """
     n = parent.shape[0]
     nf, lf = res.node_fields, res.link_fields
@@ -411,8 +436,9 @@ def _node_state(res, parent, length_m, settings, prices):
     ground = invert + node_depth
     child = np.flatnonzero(parent >= 0)      # the design's links, in this order
     depth = np.where(np.isfinite(node_depth), node_depth, 0.0)
-    depth[child] = ground[child] - np.asarray(lf["invert_up_m"], dtype=np.float64)
-    depth = np.where(np.isfinite(depth), depth, 0.0)
+    if not getattr(settings, "lift_stations", False):
+        depth[child] = ground[child] - np.asarray(lf["invert_up_m"], dtype=np.float64)
+        depth = np.where(np.isfinite(depth), depth, 0.0)
     flow = np.zeros(n)
     flow[child] = np.asarray(lf["design_flow_lps"], dtype=np.float64)
     L = np.asarray(length_m, dtype=np.float64)
