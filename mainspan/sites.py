@@ -115,6 +115,11 @@ class Sites:
         return r.astype(np.int64) if r.size else np.array([0], dtype=np.int64)
 
 
+def _py(v):
+    """A numpy scalar as the plain Python value, so messages show -2.5, not np.float64(-2.5)."""
+    return v.item() if hasattr(v, "item") and getattr(v, "ndim", 1) == 0 else v
+
+
 def _where(path, layer):
     return f"{path}" + (f" (layer {layer!r})" if layer else "")
 
@@ -296,8 +301,8 @@ def read_sites(path, *, layer=None, id_field=None, role_field=None, demand_field
         badr = np.flatnonzero(~np.isin(role, ROLES))
         if badr.size:
             i = int(badr[0])
-            raise InputError(f"sites {where}: site {ids[i]!r} has role {raw.iloc[i]!r} in field "
-                             f"{role_field!r}; roles are {', '.join(ROLES)}")
+            raise InputError(f"sites {where}: site {ids[i]!r} has role {_py(raw.iloc[i])!r} in "
+                             f"field {role_field!r}; roles are {', '.join(ROLES)}")
     else:
         role = np.full(n, "demand", dtype=object)
 
@@ -308,8 +313,8 @@ def read_sites(path, *, layer=None, id_field=None, role_field=None, demand_field
         badd = np.flatnonzero(~np.isfinite(demand) | (demand < 0))
         if badd.size:
             i = int(badd[0])
-            raise InputError(f"sites {where}: site {ids[i]!r} has demand {raw.iloc[i]!r} in field "
-                             f"{demand_field!r}; demands must be numbers >= 0 (L/s)")
+            raise InputError(f"sites {where}: site {ids[i]!r} has demand {_py(raw.iloc[i])!r} in "
+                             f"field {demand_field!r}; demands must be numbers >= 0 (L/s)")
     else:
         demand = np.zeros(n)
 
@@ -334,8 +339,8 @@ def read_sites(path, *, layer=None, id_field=None, role_field=None, demand_field
         if bad.size:
             i = int(bad[0])
             rng = "between 0 and 1" if hi else ">= 0"
-            raise InputError(f"sites {where}: site {ids[i]!r} has {raw.iloc[i]!r} in field {name!r}; "
-                             f"{key} must be a number {rng}")
+            raise InputError(f"sites {where}: site {ids[i]!r} has {_py(raw.iloc[i])!r} in field "
+                             f"{name!r}; {key} must be a number {rng}")
         basis[key] = vals
     # each site's own minimum pressure head (pressure networks): empty -> the design default
     if min_pressure_field is None and "min_pressure_m" in attrs.columns:

@@ -225,7 +225,7 @@ def _check_weights(weights, edges):
     w = _plain(w, np.float64)
     k, n_bad = _scan_weights(w)
     if n_bad:
-        what = "NaN" if np.isnan(w[k]) else f"negative ({w[k]!r})"
+        what = "NaN" if np.isnan(w[k]) else f"negative ({float(w[k])!r})"
         raise InputError(f"link {k} ({int(edges[k, 0])}, {int(edges[k, 1])}) has a {what} "
                          f"weight ({n_bad} such links); weights must be >= 0, or inf for an "
                          "impassable link")
@@ -884,7 +884,7 @@ def certify_tree(n_nodes, edges, weights, tree: Tree) -> Certificate:
         return Certificate(ok=False, n_checked=int(n_checked), worst_margin=float(worst),
                            violating_edge=int(bad_k), method=method,
                            detail=(f"link {bad_k} ({int(e[bad_k, 0])}, {int(e[bad_k, 1])}) "
-                                   f"of weight {w[bad_k]!r} is lighter than a tree link on "
+                                   f"of weight {float(w[bad_k])!r} is lighter than a tree link on "
                                    f"its cycle (margin {worst!r})"))
     return Certificate(ok=True, n_checked=int(n_checked), worst_margin=float(worst),
                        violating_edge=-1, method=method)

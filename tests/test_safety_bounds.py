@@ -154,3 +154,13 @@ def test_stability_runs_are_interruptible(tmp_path):
     _, rest = proc.communicate(timeout=120)
     assert proc.returncode == 130, rest
     assert "interrupted" in rest and "Traceback" not in rest
+
+
+def test_numeric_field_values_shown_plainly(tmp_path, capsys):
+    s = write_points(tmp_path / "neg.gpkg", [[512000, 5120000], [512100, 5120000],
+                                             [512200, 5120050]],
+                     fields={"id": [1, 2, 3], "role": ["source", "demand", "demand"],
+                             "demand_lps": [0.0, -2.5, 1.0]})
+    line = _refused(["plan", "--sites", s, "--out", tmp_path / "o.gpkg"], capsys,
+                    ["site '2' has demand -2.5 in field 'demand_lps'"])
+    assert "np." not in line

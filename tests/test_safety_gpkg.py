@@ -1,4 +1,4 @@
-"""--overwrite over mainspan's own GeoPackage replaces the whole previous run; mixed files refused."""
+"""--overwrite over our own GeoPackage replaces the whole previous run; mixed files refused."""
 
 import sqlite3
 

@@ -21,7 +21,8 @@ def readonly_package(tmp_path, monkeypatch):
     pkg.mkdir(parents=True)
     real = os.access
     monkeypatch.setattr(ns.os, "access",
-                        lambda p, m, **kw: False if str(p).startswith(str(pkg)) else real(p, m, **kw))
+                        lambda p, m, **kw: False if str(p).startswith(str(pkg))
+                        else real(p, m, **kw))
     return str(pkg)
 
 

@@ -180,7 +180,8 @@ def test_symlinked_output_is_written_through(tmp_path, sites, capsys):
     target, link = real_dir / "layout.gpkg", tmp_path / "layout.gpkg"
     rep_target, rep_link = real_dir / "r.html", tmp_path / "r.html"
     args = ["plan", "--sites", sites, "--out", link, "--report", rep_link, "--quiet"]
-    assert run_cli(args, capsys)[0] == 0          # first run writes plain files; then they move behind links
+    # the first run writes plain files; then they move behind links
+    assert run_cli(args, capsys)[0] == 0
     os.replace(link, target)
     os.replace(rep_link, rep_target)
     os.symlink(target, link)

@@ -225,7 +225,8 @@ def write_layers(path, layers: dict, *, overwrite=False):
                 rows = {n: prev_ids.get(n) or "" for n in manifest}
                 rows.update({n: run_id for n in layers})
                 frames = dict(layers)
-                frames[MANIFEST] = pd.DataFrame({"layer": list(rows), "run_id": list(rows.values())})
+                frames[MANIFEST] = pd.DataFrame({"layer": list(rows),
+                                                 "run_id": list(rows.values())})
                 for name, df in frames.items():
                     kw = {}
                     if "geometry" in getattr(df, "columns", []) and hasattr(df, "crs"):
