@@ -209,3 +209,35 @@ def test_stale_temps_of_dead_processes_only_are_cleaned(tmp_path):
     removed = clean_stale_temps(tmp_path)
     assert sorted(removed) == sorted(names[:3])
     assert leftovers(tmp_path) == sorted([names[3], names[5]])
+
+
+def test_temp_file_and_folder_are_fsynced_before_and_after_the_move(tmp_path, sites, capsys,
+                                                                    monkeypatch):
+    lay = tmp_path / "layout.gpkg"
+    assert run_cli(["plan", "--sites", sites, "--out", lay, "--quiet"], capsys)[0] == 0
+    synced = []
+    real = os.fsync
+
+    def spy(fd):
+        synced.append(os.readlink(f"/proc/self/fd/{fd}"))
+        return real(fd)
+    if not os.path.isdir("/proc/self/fd"):
+        pytest.skip("needs /proc to name the synced files")
+    monkeypatch.setattr("mainspan.safeio.os.fsync", spy)
+    assert run_cli(["report", lay, "--out", tmp_path / "r.html"], capsys)[0] == 0
+    assert any(os.path.basename(p).startswith(".mainspan-") for p in synced), synced
+    assert str(tmp_path) in synced                          # the folder, after the move
+
+
+def test_failed_write_leaves_no_temp_and_the_old_file(tmp_path, sites, capsys, monkeypatch):
+    lay = tmp_path / "layout.gpkg"
+    args = ["plan", "--sites", sites, "--out", lay, "--quiet"]
+    assert run_cli(args, capsys)[0] == 0
+    before = snapshot(lay)
+
+    def broken(tmp, target):
+        raise OSError(28, "No space left on device")
+    monkeypatch.setattr("mainspan.safeio.replace_into", broken)
+    code, _, err = run_cli(args + ["--overwrite"], capsys)
+    assert code == 2 and "No space left on device" in one_error_line(err)
+    assert snapshot(lay) == before and leftovers(tmp_path) == []
