@@ -292,3 +292,19 @@ def test_design_variants_one_pipe_per_link_and_monotone_sizes():
     rep = design_network("pressure", settings=DesignSettings(sizing_monotone=True, highs_max_links=0), **case)
     assert rep.summary["sizing_solver"] == "tree" and rep.failures == []
     assert any("not proven optimal" in t for t in rep.summary["sizing_notes"])
+
+
+def test_forest_each_source_sized_and_priced():
+    # two sources, each with its own tree: both meet every pressure; each pump station is its own bill row
+    case = tree_case(7, n=20)
+    case["from_node"] = np.where(np.arange(19) == 9, 0, case["from_node"])   # keep the trees apart at node 10
+    f, t = case["from_node"].copy(), case["to_node"].copy()
+    keep = t != 10
+    case.update(from_node=f[keep], to_node=t[keep], length_m=case["length_m"][keep],
+                surface_length_m=case["surface_length_m"][keep], roots=[0, 10])
+    r = design_network("pressure", settings=DesignSettings(), **case)
+    assert r.failures == [] and len(r.summary["source_hgl_m"]) == 2
+    assert np.all(r.node_fields["pressure_head_m"] >= 14.0 - 1e-6)
+    q = r.quantities
+    stations = [i for c, i in zip(q["category"], q["item"]) if c == "pump station"]
+    assert len(stations) == 2 and all(" at " in s for s in stations)

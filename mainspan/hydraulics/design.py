@@ -921,8 +921,9 @@ def _pressure_extras(s, prices, net, xy, elev, plan, off, st, gr, links, summary
                          "give one, or one per source")
     duty = pump_duty(src_flow, root_hgl, sump, prices, efficiency=s.pump_efficiency)
     for j in np.flatnonzero(duty["shaft_kw"] > 0):
-        items.append(Item("pump station", f"pump station {duty['shaft_kw'][j]:.1f} kW", "each", 1.0,
-                          float(duty["station_cost"][j])))
+        # named by source: two stations of nearly equal power would otherwise merge into one row (size11)
+        name = f"pump station {duty['shaft_kw'][j]:.1f} kW" + (f" at {ids[net.roots[j]]}" if net.roots.size > 1 else "")
+        items.append(Item("pump station", name, "each", 1.0, float(duty["station_cost"][j])))
     annual = float(duty["annual_kwh"].sum())
     if annual > 0:
         items.append(Item("energy (present value)", f"pumping energy, {prices.years:g} years at "

@@ -833,10 +833,50 @@ def least_cost_tree(net, loss_m, cost, admissible, req_head_m, *, root_head_m=No
     req = np.ascontiguousarray(req_head_m, dtype=np.float64)
     is_root = np.zeros(net.n_nodes, np.bool_)
     is_root[net.roots] = True
+    r = net.roots
+    if L and np.all(np.isnan(head[r])) and np.all(weight[r] > 0):
+        # Free heads priced by energy: at the optimum no link pays more for a metre of head than its
+        # source's energy price (the node prices of the dual sum to it), so hull segments steeper than
+        # that are taken in full.  Solve without them; the answer stands when no source reaches its
+        # cap (then every optimality condition of the full problem holds), else solve in full.
+        w_link = weight[net.root_of[net.from_node]]
+        ph = _prune_hulls(hoff, hp, hh, hc, w_link)
+        H, hl, rmin, rcost, feas = _tree_dp(net.n_nodes, net.order, net.parent, net.parent_link,
+                                            net.children_offsets, net.children, is_root, req, ph[0], ph[2], ph[3],
+                                            head, weight, cap)
+        if np.all(feas[r]) and np.all(H[r] < cap[r] - 1e-9 * np.maximum(1.0, np.abs(cap[r]))):
+            p1, p2, f2 = _pieces(ph[0], ph[1], ph[2], hl)
+            rmin = _least_head(net, hoff, hh, req)
+            return _result(net, loss, cst, p1, p2, f2, H, rmin, feas, weight)
     H, hl, rmin, rcost, feas = _tree_dp(net.n_nodes, net.order, net.parent, net.parent_link, net.children_offsets,
                                         net.children, is_root, req, hoff, hh, hc, head, weight, cap)
     p1, p2, f2 = _pieces(hoff, hp, hh, hl)
     return _result(net, loss, cst, p1, p2, f2, H, rmin, feas, weight)
+
+
+def _prune_hulls(hoff, hp, hh, hc, w_link):
+    """Drop the leading hull points whose next segment is steeper than −w (CSR arrays in, CSR arrays out)."""
+    L = hoff.size - 1
+    link = np.repeat(np.arange(L), np.diff(hoff))
+    last = np.zeros(hh.size, bool)
+    last[hoff[1:] - 1] = True
+    nxt = np.minimum(np.arange(hh.size) + 1, hh.size - 1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        slope = np.where(last, np.inf, (hc[nxt] - hc) / np.where(last, 1.0, hh[nxt] - hh))
+    keep = ~(slope < -w_link[link])
+    off = np.zeros(L + 1, np.int64)
+    np.cumsum(np.bincount(link[keep], minlength=L), out=off[1:])
+    return off, hp[keep], hh[keep], hc[keep]
+
+
+def _least_head(net, hoff, hh, req):
+    """Least head at each root meeting every requirement with the least-loss pipes."""
+    from ..network import cost_to_root
+
+    least = hh[hoff[:-1]]
+    need = np.full(net.n_nodes, -np.inf)
+    np.maximum.at(need, net.root_of, req + cost_to_root(net, least))
+    return need
 
 
 def _result(net, loss, cst, p1, p2, f2, H, rmin, feas, weight):
