@@ -166,3 +166,27 @@ def test_catalog_csv_outer_mm(tmp_path):
     p.write_text("name,nominal_mm,inner_mm,outer_mm,cost_per_m,material,manning_n\nA,200,201.2,190,30,PVC,0.013\n")
     with pytest.raises(DataFileError, match=r"line 2, column 'outer_mm': 190 is below inner_mm 201.2"):
         read_catalog(p)
+
+
+def test_lift_station_inside_a_link_that_crosses_a_valley():
+    # N2 -> N1 (100 m) crosses a valley 5 m deep halfway, the ground sampled every 10 m. By gravity
+    # the pipe leaves the valley floor at 5 - 1.1073 = 3.8927 m and reaches N1 6.31 m deep (> 6 m);
+    # a lift station on the valley's N1 side puts both parts within 6 m
+    prof = [(x, 10.0 - 0.1 * x) for x in range(10, 50, 10)] + [(50.0, 5.0)] + \
+           [(x, 5.0 + 0.1 * (x - 50)) for x in range(60, 100, 10)]
+    gravity_only = tree([10.0, 10.0, 10.0], [0, 1], [100.0, 100.0], [0.0, 0.0, 5.0], profile={1: prof},
+                             settings=DesignSettings(lift_stations=False))
+    assert gravity_only.link_fields["depth_max_m"][1] == pytest.approx(10.0 - (3.8927 - 0.004 * 50), abs=1e-6)
+    r = tree([10.0, 10.0, 10.0], [0, 1], [100.0, 100.0], [0.0, 0.0, 5.0], profile={1: prof})
+    ap = r.access_points
+    lift = (ap["kind"] == "lift station") & (ap["node"] == "")     # inside a link, not at a node
+    assert lift.sum() == 1 and ap["link"][lift].tolist() == [1]
+    x = float(ap["chainage_m"][lift][0])
+    assert 0.0 < x < 50.0                                  # on the rising side, towards N1
+    assert np.all(r.link_fields["depth_max_m"] <= 6.0 + 1e-9) and not any("too_deep" in f for f in r.failures)
+    # the lift brings the pipe from its gravity invert there up to minimum cover (hand: 5.2 - 0.104 x)
+    assert float(ap["lift_m"][lift][0]) == pytest.approx(5.2 - 0.104 * x, abs=1e-6)
+    assert float(ap["invert_m"][lift][0]) == pytest.approx(10.0 - 0.1 * x - 0.9 - TOP, abs=1e-4)
+    names = [st["node"] for st in r.summary["lift_stations"]]
+    assert any(nm.startswith("link 2 at") for nm in names)
+    assert gravity_only.summary["n_lift_stations"] == 0

@@ -59,15 +59,32 @@ def test_gravity_rules_hold(seed):
     for k in range(L.size):
         here = ap["link"] == k
         brk = here & (ap["kind"] == "grade break")
+        lift = here & (ap["kind"] == "lift station") & (ap["node"] == "")   # inside the link: the invert jumps up there
+        assert lift.sum() <= 1
         o = np.argsort(ap["chainage_m"][brk])
         ch = np.r_[0.0, ap["chainage_m"][brk][o], L[k]]          # from the downstream (from_node) end
         inv = np.r_[lf["invert_down_m"][k], ap["invert_m"][brk][o], lf["invert_up_m"][k]]
-        grades = np.diff(inv) / np.diff(ch)
-        assert np.all(grades >= lf["min_slope_pct"][k] / 100 * (1 - 1e-9))
-        assert grades.min() == pytest.approx(lf["slope_pct"][k] / 100)
+        x = ap["chainage_m"][lift][0] if lift.any() else np.inf
+        parts = [(ch <= x, ap["invert_m"][lift][0] if lift.any() else None),
+                 (ch >= x, ap["invert_m"][lift][0] - ap["lift_m"][lift][0] if lift.any() else None)]
         sta = np.r_[0.0, st[off[k]:off[k + 1]], L[k]]
         g = np.r_[z[case["from_node"][k]], gr[off[k]:off[k + 1]], z[k + 1]]
-        pipe = np.interp(sta, ch, inv)
+        pipe = np.full(sta.size, np.nan)
+        flattest = np.inf
+        for side, (m, at_x) in enumerate(parts):
+            cs, iv = ch[m], inv[m]
+            if at_x is not None:           # the lift station's own invert on this side
+                cs, iv = np.r_[cs, x], np.r_[iv, at_x]
+                srt = np.argsort(cs, kind="stable")
+                cs, iv = cs[srt], iv[srt]
+            if cs.size < 2:
+                continue
+            grades = np.diff(iv) / np.diff(cs)
+            assert np.all(grades >= lf["min_slope_pct"][k] / 100 * (1 - 1e-9))
+            flattest = min(flattest, grades.min())
+            sel = (sta <= x) if side == 0 else (sta > x)
+            pipe[sel] = np.interp(sta[sel], cs, iv)
+        assert flattest == pytest.approx(lf["slope_pct"][k] / 100)
         assert np.all(g - pipe - top[k] >= s.gravity_cover_m - 1e-6)
         assert lf["depth_max_m"][k] == pytest.approx(np.max(g - pipe))
         assert lf["cover_min_m"][k] == pytest.approx(np.min(g - pipe - top[k]))

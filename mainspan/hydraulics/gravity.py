@@ -413,6 +413,8 @@ def _walk(nodes_up_first, parent, parent_link, ground, prof_off, prof_s, prof_g,
     lift_m = np.zeros(n_nodes)
     lift_head = np.zeros(n_nodes)
     lift_kw = np.zeros(n_nodes)
+    st_lift_m = np.zeros(prof_s.shape[0])
+    st_lift_kw = np.zeros(prof_s.shape[0])
     max_c = 1
     for k in range(n_links):
         max_c = max(max_c, prof_off[k + 1] - prof_off[k])
@@ -428,6 +430,7 @@ def _walk(nodes_up_first, parent, parent_link, ground, prof_off, prof_s, prof_g,
     brk_w = np.empty(max_c, np.bool_)
     uid = np.empty(max_c, np.int64)
     cand_w = np.empty(max_c, np.bool_)
+    s2_w = np.empty(max_c)
     for v in nodes_up_first:
         k = parent_link[v]
         if k < 0:
@@ -514,6 +517,54 @@ def _walk(nodes_up_first, parent, parent_link, ground, prof_off, prof_s, prof_g,
                 cost_g, flat, down, deep_g = _grade_link(s, g, b, iu, floor, extra_m, args_w, band_to_m,
                                                      band_rate, shore_rate, shore_depth_m, mh_base, mh_per_m, levels, cand,
                                                      H[:C], cost_to[:C], pred_i[:C], pred_m[:C], inv_w[:C], brk_w[:C])
+        mid = -1
+        mid_lift = 0.0
+        if lift_on and qk > 0.0 and deep_g > max_depth + 1e-9 and C > 2:
+            # still too deep: a lift station inside the link, at the candidate station where the two
+            # gravity parts both stay within the maximum depth for the least price
+            best_c = np.inf
+            for c in range(1, C - 1):
+                if not cand[c]:
+                    continue
+                ca, _, za, da = _grade_link(s[:c + 1], g[:c + 1], b[:c + 1], iu, floor, extra_m, args_w, band_to_m,
+                                            band_rate, shore_rate, shore_depth_m, mh_base, mh_per_m, levels,
+                                            cand[:c + 1], H[:c + 1], cost_to[:c + 1], pred_i[:c + 1], pred_m[:c + 1],
+                                            inv_w[:c + 1], brk_w[:c + 1])
+                if da > max_depth + 1e-9:
+                    continue
+                for u in range(c, C):
+                    s2_w[u - c] = s[u] - s[c]
+                cb, _, _, db = _grade_link(s2_w[:C - c], g[c:], b[c:], b[c], floor, extra_m, args_w, band_to_m,
+                                           band_rate, shore_rate, shore_depth_m, mh_base, mh_per_m, levels, cand[c:],
+                                           H[:C - c], cost_to[:C - c], pred_i[:C - c], pred_m[:C - c], inv_w[c:], brk_w[c:])
+                if db > max_depth + 1e-9:
+                    continue
+                kw_c = 9.81 * qk * (b[c] - za + lift_allowance_m) / lift_eta
+                tot = ca + cb + lift_fixed + lift_per_kw * kw_c
+                if tot < best_c - 1e-9:
+                    best_c = tot
+                    mid = c
+            if mid >= 0:
+                c = mid
+                _, fa, za, da = _grade_link(s[:c + 1], g[:c + 1], b[:c + 1], iu, floor, extra_m, args_w, band_to_m,
+                                            band_rate, shore_rate, shore_depth_m, mh_base, mh_per_m, levels,
+                                            cand[:c + 1], H[:c + 1], cost_to[:c + 1], pred_i[:c + 1], pred_m[:c + 1],
+                                            inv_w[:c + 1], brk_w[:c + 1])
+                for u in range(c, C):
+                    s2_w[u - c] = s[u] - s[c]
+                _, fb, down, db = _grade_link(s2_w[:C - c], g[c:], b[c:], b[c], floor, extra_m, args_w, band_to_m,
+                                              band_rate, shore_rate, shore_depth_m, mh_base, mh_per_m, levels, cand[c:],
+                                              H[:C - c], cost_to[:C - c], pred_i[:C - c], pred_m[:C - c], inv_w[c:],
+                                              brk_w[c:])
+                flat = min(fa, fb)
+                deep_g = max(da, db)
+                mid_lift = b[c] - za
+                brk_w[c] = False
+            else:  # none fits: grade the link whole again into the work arrays the trials overwrote
+                cost_g, flat, down, deep_g = _grade_link(s, g, b, iu, floor, extra_m, args_w, band_to_m, band_rate,
+                                                         shore_rate, shore_depth_m, mh_base, mh_per_m, levels, cand,
+                                                         H[:C], cost_to[:C], pred_i[:C], pred_m[:C], inv_w[:C],
+                                                         brk_w[:C])
         for o in range(a0, prof_off[k + 1]):
             inv_s[o] = inv_w[uid[o - a0]]
         # one break flag per merged station: on its first original station
@@ -522,6 +573,12 @@ def _walk(nodes_up_first, parent, parent_link, ground, prof_off, prof_s, prof_g,
             if brk_w[u]:
                 brk_s[o] = True
                 brk_w[u] = False
+        if mid >= 0:
+            for o in range(prof_off[k + 1] - 1, a0 - 1, -1):
+                if uid[o - a0] == mid:        # the station's first original station carries the lift
+                    st_lift_m[o] = mid_lift
+                    st_lift_kw[o] = 9.81 * qk * (mid_lift + lift_allowance_m) / lift_eta
+                    break
         pipe[k] = j
         inv_up[k] = iu
         inv_down[k] = down
@@ -531,7 +588,7 @@ def _walk(nodes_up_first, parent, parent_link, ground, prof_off, prof_s, prof_g,
         in_crown[p] = min(in_crown[p], down + d)
         in_low[p] = min(in_low[p], down)
         in_pipe[p] = max(in_pipe[p], j)
-    return pipe, inv_up, inv_down, slope, no_pipe, inv_s, brk_s, lift_m, lift_head, lift_kw
+    return pipe, inv_up, inv_down, slope, no_pipe, inv_s, brk_s, lift_m, lift_head, lift_kw, st_lift_m, st_lift_kw
 
 
 class GravityWalk(NamedTuple):
@@ -547,6 +604,8 @@ class GravityWalk(NamedTuple):
     lift_m: np.ndarray          #: (n,) static lift of a lift station at the node (0: none)
     lift_head_m: np.ndarray     #: (n,) pump head of that station (lift + allowance)
     lift_kw: np.ndarray         #: (n,) its hydraulic power / efficiency
+    station_lift_m: np.ndarray  #: (S,) static lift of a lift station inside a link at this station (0: none)
+    station_lift_kw: np.ndarray  #: (S,) its power
 
 
 def walk_inverts(net, ground_m, profile_offsets, station_up_m, profile_ground_m, flow_m3ps,
@@ -578,7 +637,10 @@ def walk_inverts(net, ground_m, profile_offsets, station_up_m, profile_ground_m,
     5. optionally, a lift station at the upstream node when the link would
        be deeper than *max_depth_m* and lifting keeps it within, or when
        the station, its energy and the shallower link cost less than the
-       deep link (greedy: the gain further downstream is not counted).
+       deep link (greedy: the gain further downstream is not counted);
+       and if the link is still too deep (a valley or ridge inside it), a
+       lift station at the candidate station inside the link where both
+       gravity parts stay within *max_depth_m* for the least price.
 
     Parameters
     ----------

@@ -32,6 +32,10 @@ Structures
   (``PriceTable.pump_station_cost`` and ``PriceTable.energy_cost_pv`` at
   ``P = ρ g Q H / η``, H = static lift + ``lift_head_allowance_m``).  A
   lift station is a priced choice, listed in the summary, not a failure.
+* A link still too deep after that (a valley or ridge inside it) gets a
+  lift station inside it, at the candidate station where both gravity
+  parts stay within the maximum depth for the least price (``kind`` "lift
+  station" in ``access_points``, named by link and chainage).
 * With ``outlet_invert_m`` set (e.g. the receiving water level), mains
   reaching an outlet below it are lifted there by a lift station, or
   flagged ``below_outlet`` when lift stations are off.
@@ -306,12 +310,16 @@ def design_gravity(s, net, xy, elev, plan, off, st, gr, q_lps, links, nodes, fla
     sp_link = plink[a][seg]
     sp_ch = st[a][seg] + seg_len[seg] * t / (nint[seg] + 1)
     brk = np.flatnonzero(walk.station_break)
-    ap_link = np.concatenate([plink[brk], sp_link]).astype(np.int64)
-    ap_ch = np.concatenate([st[brk], sp_ch])
-    ap_kind = np.concatenate([np.full(brk.size, "grade break", dtype=object), np.full(sp_link.size, "spacing", dtype=object)])
+    mid = np.flatnonzero(walk.station_lift_kw > 0)       # lift stations inside links
+    ap_link = np.concatenate([plink[brk], sp_link, plink[mid]]).astype(np.int64)
+    ap_ch = np.concatenate([st[brk], sp_ch, st[mid]])
+    ap_kind = np.concatenate([np.full(brk.size, "grade break", dtype=object), np.full(sp_link.size, "spacing", dtype=object),
+                              np.full(mid.size, "lift station", dtype=object)])
+    ap_lift = np.concatenate([np.zeros(brk.size + sp_link.size), walk.station_lift_m[mid]])
+    ap_kw = np.concatenate([np.zeros(brk.size + sp_link.size), walk.station_lift_kw[mid]])
     order = np.lexsort((ap_ch, ap_link))
-    ap_link, ap_ch, ap_kind = ap_link[order], ap_ch[order], ap_kind[order]
-    n_ap = np.bincount(ap_link, minlength=L).astype(np.int64)
+    ap_link, ap_ch, ap_kind, ap_lift, ap_kw = ap_link[order], ap_ch[order], ap_kind[order], ap_lift[order], ap_kw[order]
+    n_ap = np.bincount(ap_link[ap_kind != "lift station"], minlength=L).astype(np.int64)
     n_breaks = np.bincount(plink[brk], minlength=L).astype(np.int64)
     safe = np.where(plan[ap_link] > 0, plan[ap_link], 1.0)
     ap_frac = ap_ch / safe
@@ -335,8 +343,8 @@ def design_gravity(s, net, xy, elev, plan, off, st, gr, q_lps, links, nodes, fla
         "node": np.concatenate([np.full(ap_link.size, "", dtype=object), ids[special].astype(object)]).astype(object),
         "depth_m": np.concatenate([ap_ground - ap_inv, node_depth[special]]),
         "drop_m": np.concatenate([np.zeros(ap_link.size), node_drop[special]]),
-        "lift_m": np.concatenate([np.zeros(ap_link.size), lift_m[special]]),
-        "power_kw": np.concatenate([np.zeros(ap_link.size), lift_kw[special]]),
+        "lift_m": np.concatenate([ap_lift, lift_m[special]]),
+        "power_kw": np.concatenate([ap_kw, lift_kw[special]]),
     }
 
     # ---- failures
@@ -373,21 +381,26 @@ def design_gravity(s, net, xy, elev, plan, off, st, gr, q_lps, links, nodes, fla
     items += _count_by_band("drop manhole", node_depth[is_drop],
                             np.asarray(prices.manhole_cost(node_depth[is_drop], drop=True), float))
     ap_depth = ap_ground - ap_inv
+    in_link = ap_kind != "lift station"
     items += [(c, it.replace("manhole", "access point (manhole) in a link", 1), u, qn, uc, sz)
-              for c, it, u, qn, uc, sz in _count_by_band("manhole", ap_depth, np.asarray(prices.manhole_cost(ap_depth), float))]
+              for c, it, u, qn, uc, sz in _count_by_band("manhole", ap_depth[in_link],
+                                                         np.asarray(prices.manhole_cost(ap_depth[in_link]), float))]
     lifts = []
     energy_pv = 0.0
-    for v in np.flatnonzero(is_lift):
-        cost = float(np.asarray(prices.pump_station_cost(lift_kw[v])))
-        epv = float(np.asarray(prices.energy_cost_pv(lift_kw[v])))
+    where = [(str(ids[v]), lift_m[v], lift_head[v], lift_kw[v]) for v in np.flatnonzero(is_lift)]
+    where += [(f"link {k + 1} at {c:.0f} m from {ids[net.from_node[k]]}", lm, lm + s.lift_head_allowance_m, kw)
+              for k, c, lm, kw in zip(ap_link[~in_link], ap_ch[~in_link], ap_lift[~in_link], ap_kw[~in_link])]
+    for name, lm, head, kw in where:
+        cost = float(np.asarray(prices.pump_station_cost(kw)))
+        epv = float(np.asarray(prices.energy_cost_pv(kw)))
         energy_pv += epv
-        items.append(("lift station", f"lift station at {ids[v]} ({lift_kw[v]:.2f} kW, {lift_m[v]:.2f} m lift)", "each", 1.0,
+        items.append(("lift station", f"lift station at {name} ({kw:.2f} kW, {lm:.2f} m lift)", "each", 1.0,
                       cost, float("nan")))
-        lifts.append({"node": str(ids[v]), "lift_m": float(lift_m[v]), "head_m": float(lift_head[v]),
-                      "flow_lps": float(lift_kw[v] * s.lift_efficiency / (9.81 * lift_head[v]) * 1000.0),
-                      "power_kw": float(lift_kw[v]), "station_cost": cost, "energy_cost_pv": epv})
-    if is_lift.any():
-        items.append(("energy (present value)", "lift station energy", "kW", float(lift_kw[is_lift].sum()),
+        lifts.append({"node": name, "lift_m": float(lm), "head_m": float(head),
+                      "flow_lps": float(kw * s.lift_efficiency / (9.81 * head) * 1000.0),
+                      "power_kw": float(kw), "station_cost": cost, "energy_cost_pv": epv})
+    if where:
+        items.append(("energy (present value)", "lift station energy", "kW", float(sum(w[3] for w in where)),
                       energy_per_kw, float("nan")))
 
     links.update(
@@ -416,7 +429,7 @@ def design_gravity(s, net, xy, elev, plan, off, st, gr, q_lps, links, nodes, fla
         n_grade_breaks=int(n_breaks.sum()),
         n_manholes=int(is_manhole.sum() + n_ap.sum()),
         n_drop_manholes=int(is_drop.sum()),
-        n_lift_stations=int(is_lift.sum()),
+        n_lift_stations=len(lifts),
         lift_stations=lifts,
         lift_energy_cost_pv=energy_pv,
         n_pipes_outer_assumed=int(outer_guessed[keep].sum()),   # catalog rows without outer_mm
