@@ -350,28 +350,49 @@ def _least_cost(s, net, loss, cost, ok_v, top_head, req, src, weight, link_root,
         return adm
 
     rounds = 1
+    exact = True
     if src is not None:
         res = solve(with_class(src), src, None)
     else:
-        # the highest source head at which every link still has a pipe of adequate class
-        cap = np.full(R, np.inf)
-        if L:
+        # 1. without the class limits: a relaxation, so if its pipes hold their own static head
+        #    and surge it is the optimum
+        res = solve(ok_v, None, None)
+        k_all = np.arange(L)
+        if L and np.all(res.feasible):
+            h = res.root_head_m[link_root] - 1e-9
+            q2 = np.where(res.pipe_2 >= 0, res.pipe_2, res.pipe)
+            held = (top_head[k_all, res.pipe] >= h) & (top_head[k_all, q2] >= h)
+        else:
+            held = np.zeros(L, bool)
+        if L and not held.all():
+            # 2. classes bind: fix the classes at a head, size with the head capped there, refix at the
+            #    head reached, until the classes stop changing; started from the relaxation's head and
+            #    from the highest head every link can hold, the cheaper outcome kept (each sizing is exact
+            #    for its classes; the pair is a search, not a proof)
+            exact = False
+            cap = np.full(R, np.inf)
             link_cap = np.max(np.where(ok_v, top_head, -np.inf), axis=1)
             np.minimum.at(cap, link_root, link_cap)
-        adm = with_class(cap)
-        res = solve(adm, None, cap)
-        for rounds in range(2, 11):
-            if not np.all(res.feasible):
-                break
-            adm_new = with_class(res.root_head_m)
-            if np.array_equal(adm_new, adm):
-                break
-            adm = adm_new
-            res = solve(adm, None, res.root_head_m)
-        if not np.all(res.feasible):
-            notes.append("no pressure class in the catalog holds the head this tree needs; sized without the class "
-                         "limit and flagged over_rating")
-            res = solve(ok_v, None, None)
+            best = None
+            for start in (np.minimum(res.root_head_m, cap), cap):
+                adm = with_class(start)
+                cand = solve(adm, None, start)
+                for _ in range(9):
+                    rounds += 1
+                    if not np.all(cand.feasible):
+                        break
+                    adm_new = with_class(cand.root_head_m)
+                    if np.array_equal(adm_new, adm):
+                        break
+                    adm = adm_new
+                    cand = solve(adm, None, cand.root_head_m)
+                if np.all(cand.feasible) and (best is None or cand.objective < best.objective):
+                    best = cand
+            if best is None:
+                notes.append("no pressure class in the catalog holds the head this tree needs; sized without the "
+                             "class limit and flagged over_rating")
+            else:
+                res = best
     if not np.all(res.feasible):
         notes.append("the source head given cannot meet every minimum pressure even with the largest pipes; "
                      f"the tree needs at least {np.nanmax(res.root_min_head_m):.2f} m above datum")
@@ -389,6 +410,7 @@ def _least_cost(s, net, loss, cost, ok_v, top_head, req, src, weight, link_root,
                      "link was smaller than a link below it (feasible, not proven optimal)")
     root_h = res.root_head_m if src is None else src
     info = {"sizing_solver": solver, "sizing_rounds": rounds, "sizing_optimum": float(res.cost),
+            "sizing_classes_bind": not exact,
             "sizing_min_source_hgl_m": [float(x) for x in res.root_min_head_m]}
     return p1, p2, f2, np.asarray(root_h, float), info
 

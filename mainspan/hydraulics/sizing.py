@@ -844,7 +844,9 @@ def least_cost_tree(net, loss_m, cost, admissible, req_head_m, *, root_head_m=No
         H, hl, rmin, rcost, feas = _tree_dp(net.n_nodes, net.order, net.parent, net.parent_link,
                                             net.children_offsets, net.children, is_root, req, ph[0], ph[2], ph[3],
                                             head, weight, cap)
-        if np.all(feas[r]) and np.all(H[r] < cap[r] - 1e-9 * np.maximum(1.0, np.abs(cap[r]))):
+        with np.errstate(invalid="ignore"):
+            below = np.isinf(cap[r]) | (H[r] < cap[r] - 1e-9 * np.maximum(1.0, np.abs(cap[r])))
+        if np.all(feas[r]) and np.all(below):
             p1, p2, f2 = _pieces(ph[0], ph[1], ph[2], hl)
             rmin = _least_head(net, hoff, hh, req)
             return _result(net, loss, cst, p1, p2, f2, H, rmin, feas, weight)
