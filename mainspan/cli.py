@@ -213,26 +213,26 @@ def _settings_from(a):
     return flags, None
 
 
+_INPUT_LABELS = {("sites", "path"): "sites", ("rasters", "terrain"): "terrain",
+                 ("design", "catalog"): "pipe catalog", ("design", "prices"): "price table"}
+
+
 def _inputs_of(settings, proj=None):
-    """(label, path) of every file a run with *settings* reads."""
+    """(label, path) of every file a run with *settings* reads (every non-output path key)."""
+    from .project import _PATH_KEYS
+
     out = []
     if proj is not None:
         out.append(("project file", proj.path))
-    s = settings.get("sites", {})
-    if s.get("path"):
-        out.append(("sites", s["path"]))
-    r = settings.get("rasters", {})
-    if r.get("terrain"):
-        out.append(("terrain", r["terrain"]))
-    lc = r.get("land_cost")
+    for sec, key in sorted(_PATH_KEYS):
+        v = settings.get(sec, {}).get(key)
+        if sec != "output" and isinstance(v, str) and v:
+            out.append((_INPUT_LABELS.get((sec, key), f"[{sec}] {key}"), v))
+    lc = settings.get("rasters", {}).get("land_cost")
     if isinstance(lc, dict):
         out += [(f"land-cost raster {k!r}", v) for k, v in lc.items() if isinstance(v, str)]
     elif isinstance(lc, str):
         out.append(("land-cost raster", lc))
-    for key, label in (("catalog", "pipe catalog"), ("prices", "price table")):
-        v = settings.get("design", {}).get(key)
-        if isinstance(v, str) and v:
-            out.append((label, v))
     return out
 
 

@@ -211,3 +211,15 @@ def test_compare_outputs_checked_like_plan(tmp_path, sites, capsys):
              ["--report", ".html"])
     code, _, err = run_cli(["compare", p, "--out", d / "c.gpkg", "--quiet"], capsys)
     assert code == 0, err
+
+
+def test_every_input_path_key_is_protected(tmp_path, sites, capsys):
+    """Inputs come from the project's path keys, so a new key (here the design's
+    surface raster) is protected without a list to keep in step."""
+    raster = tmp_path / "landuse.tif"
+    raster.write_bytes(b"II*\x00 not really a raster")
+    link = tmp_path / "r.html"
+    os.symlink(raster, link)
+    _refused(["plan", "--sites", sites, "--out", tmp_path / "o.gpkg", "--report", link,
+              "--overwrite", "--design", f"surface_raster={raster}"], capsys,
+             ["--report", "[design] surface_raster", "landuse.tif"], raster)
