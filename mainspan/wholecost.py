@@ -367,6 +367,9 @@ class RuleEstimate:
     grad_table : ndarray (P, G)
         Head-loss gradient (m/m) of each pipe at each grid flow.
     peaking_factor, min_flow_lps, head_price : float
+    clement_r, clement_u : float
+        Clément's operating probability and quality quantile for on-demand
+        flows; ``clement_r = 0``: flows are accumulated demand × peaking.
     """
 
     demand_lps: np.ndarray
@@ -380,6 +383,8 @@ class RuleEstimate:
     peaking_factor: float = 1.0
     min_flow_lps: float = 0.0
     head_price: float = 0.0
+    clement_r: float = 0.0
+    clement_u: float = 0.0
 
     @classmethod
     def from_design(cls, settings, *, demand_lps, elevation_m, length_m, land_cost=None,
@@ -403,6 +408,12 @@ class RuleEstimate:
                                    method=s.headloss_method, nu_m2ps=nu,
                                    minor_loss_factor=s.minor_loss_factor)
 
+        cr = cu = 0.0
+        if getattr(s, "demand_model", "continuous") == "clement":
+            from statistics import NormalDist
+            cr = float(s.operating_probability if s.operating_probability is not None
+                       else s.hydrant_hours_per_day / s.network_hours_per_day)
+            cu = float(NormalDist().inv_cdf(s.quality_of_operation))
         demand = np.asarray(demand_lps, float)
         qtop = max(float(demand.sum()) * s.peaking_factor, s.min_flow_lps, 1.0) / 1000.0
         q_grid = np.geomspace(qtop * 1e-6, qtop * 4.0, 96)
@@ -430,13 +441,22 @@ class RuleEstimate:
                    np.asarray(land_cost, float),
                    qmax_m3ps=lo, unit_cost=np.asarray(cat.cost_per_m, float) + trench,
                    q_grid=q_grid, grad_table=table, peaking_factor=float(s.peaking_factor),
-                   min_flow_lps=float(s.min_flow_lps), head_price=float(head_price))
+                   min_flow_lps=float(s.min_flow_lps), head_price=float(head_price),
+                   clement_r=cr, clement_u=cu)
 
 
 @numba.njit(cache=True, inline="always")
-def _link(e, d_lps, length, fixed, qmax, unit, lq, lgrad, gzero, peak, qmin):
-    """(cost, head loss) of candidate e carrying subtree demand d_lps under the rule."""
-    q = max(peak * d_lps, qmin) / 1000.0
+def _link(e, d_lps, d2, length, fixed, qmax, unit, lq, lgrad, gzero, peak, qmin, cr, cu):
+    """(cost, head loss) of candidate e carrying subtree demand d_lps under the rule.
+
+    ``d2`` is the subtree sum of squared demands; with ``cr > 0`` the flow is
+    Clément's ``min(r·Σq + U·sqrt(r(1-r)·Σq²), Σq)`` (r = cr, U = cu).
+    """
+    if cr > 0.0:
+        f = min(cr * d_lps + cu * np.sqrt(max(cr * (1.0 - cr) * d2, 0.0)), d_lps)
+        q = max(f, qmin) / 1000.0
+    else:
+        q = max(peak * d_lps, qmin) / 1000.0
     P = qmax.shape[0]
     p = P - 1
     for j in range(P):
@@ -461,7 +481,7 @@ def _link(e, d_lps, length, fixed, qmax, unit, lq, lgrad, gzero, peak, qmin):
 
 @numba.njit(cache=True)
 def _prepare(n, parent, pedge, roots, demand, need, length, fixed, qmax, unit, lq, lgrad,
-             gzero, peak, qmin):  # pragma: no cover - compiled
+             gzero, peak, qmin, cr, cu):  # pragma: no cover - compiled
     """Depth-first order, subtree demand, rule cost/head loss and a range-max table."""
     nchild = np.zeros(n + 1, np.int64)
     for v in range(n):
@@ -496,12 +516,14 @@ def _prepare(n, parent, pedge, roots, demand, need, length, fixed, qmax, unit, l
                 top += 1
     size = np.ones(n, np.int64)
     dem = demand.copy()
+    dem2 = demand * demand
     for i in range(n - 1, -1, -1):
         v = pre[i]
         p = parent[v]
         if p >= 0:
             size[p] += size[v]
             dem[p] += dem[v]
+            dem2[p] += dem2[v]
     tout = tin + size
     lcost = np.zeros(n)
     lloss = np.zeros(n)
@@ -511,7 +533,8 @@ def _prepare(n, parent, pedge, roots, demand, need, length, fixed, qmax, unit, l
         v = pre[i]
         p = parent[v]
         if p >= 0:
-            c, h = _link(pedge[v], dem[v], length, fixed, qmax, unit, lq, lgrad, gzero, peak, qmin)
+            c, h = _link(pedge[v], dem[v], dem2[v], length, fixed, qmax, unit, lq, lgrad, gzero,
+                         peak, qmin, cr, cu)
             lcost[v] = c
             lloss[v] = h
             hl[v] = hl[p] + h
@@ -527,7 +550,7 @@ def _prepare(n, parent, pedge, roots, demand, need, length, fixed, qmax, unit, l
         for i in range(n):
             j = i + half
             table[k, i] = table[k - 1, i] if j >= n else max(table[k - 1, i], table[k - 1, j])
-    return tin, tout, depth, dem, lcost, lloss, hl, table, capital
+    return tin, tout, depth, dem, dem2, lcost, lloss, hl, table, capital
 
 
 @numba.njit(cache=True, inline="always")
@@ -542,8 +565,8 @@ def _rmax(table, lo, hi):
 
 
 @numba.njit(cache=True)
-def _scan(n, edges, cand, parent, pedge, tin, tout, depth, dem, lcost, lloss, hl, table,
-          length, fixed, qmax, unit, lq, lgrad, gzero, peak, qmin, head_price, max_hops,
+def _scan(n, edges, cand, parent, pedge, tin, tout, depth, dem, dem2, lcost, lloss, hl, table,
+          length, fixed, qmax, unit, lq, lgrad, gzero, peak, qmin, cr, cu, head_price, max_hops,
           root_of):  # pragma: no cover - compiled
     """Estimated change of every exchange: (delta, added link, child end of dropped link)."""
     cap = 1024
@@ -600,29 +623,31 @@ def _scan(n, edges, cand, parent, pedge, tin, tout, depth, dem, lcost, lloss, hl
             for j in range(min(la, max_hops)):
                 c = pa[j]
                 DS = dem[c]
+                DS2 = dem2[c]
                 delta = 0.0
                 # links above c on a's side lose the cut-off demand
                 for t in range(j + 1, la):
                     v = pa[t]
-                    cc, hh = _link(pedge[v], dem[v] - DS, length, fixed, qmax, unit, lq, lgrad,
-                                   gzero, peak, qmin)
+                    cc, hh = _link(pedge[v], dem[v] - DS, dem2[v] - DS2, length, fixed, qmax,
+                                   unit, lq, lgrad, gzero, peak, qmin, cr, cu)
                     delta += cc - lcost[v]
                     hA[t] = hh
                 # links on b's side gain it
                 for t in range(lb):
                     v = pb[t]
-                    cc, hh = _link(pedge[v], dem[v] + DS, length, fixed, qmax, unit, lq, lgrad,
-                                   gzero, peak, qmin)
+                    cc, hh = _link(pedge[v], dem[v] + DS, dem2[v] + DS2, length, fixed, qmax,
+                                   unit, lq, lgrad, gzero, peak, qmin, cr, cu)
                     delta += cc - lcost[v]
                     hB[t] = hh
                 # the cut-off path c .. a turns round; a hangs from b through e
                 for t in range(j + 1):
                     delta -= lcost[pa[t]]
-                ce, he_ = _link(e, DS, length, fixed, qmax, unit, lq, lgrad, gzero, peak, qmin)
+                ce, he_ = _link(e, DS, DS2, length, fixed, qmax, unit, lq, lgrad, gzero, peak,
+                                qmin, cr, cu)
                 delta += ce
                 for t in range(1, j + 1):
-                    cc, hh = _link(pedge[pa[t - 1]], DS - dem[pa[t - 1]], length, fixed, qmax,
-                                   unit, lq, lgrad, gzero, peak, qmin)
+                    cc, hh = _link(pedge[pa[t - 1]], DS - dem[pa[t - 1]], DS2 - dem2[pa[t - 1]],
+                                   length, fixed, qmax, unit, lq, lgrad, gzero, peak, qmin, cr, cu)
                     delta += cc
                     hS[t] = hh
                 if head_price > 0.0:
@@ -692,7 +717,8 @@ def _estimate_arrays(est):
     return (np.ascontiguousarray(est.length_m, float), np.ascontiguousarray(est.fixed, float),
             np.ascontiguousarray(est.qmax_m3ps, float), np.ascontiguousarray(est.unit_cost, float),
             lq, np.ascontiguousarray(lgrad), np.ascontiguousarray(est.grad_table[:, 0]),
-            float(est.peaking_factor), float(est.min_flow_lps))
+            float(est.peaking_factor), float(est.min_flow_lps), float(est.clement_r),
+            float(est.clement_u))
 
 
 def estimate_moves(n, edges, parent, parent_edge, roots, root_of, est, *, max_hops=12):
@@ -712,16 +738,15 @@ def estimate_moves(n, edges, parent, parent_edge, roots, root_of, est, *, max_ho
     pedge = np.ascontiguousarray(parent_edge, np.int64)
     roots = np.ascontiguousarray(roots, np.int64)
     arr = _estimate_arrays(est)
-    length, fixed, qmax, unit, lq, lgrad, gzero, peak, qmin = arr
-    tin, tout, depth, dem, lcost, lloss, hl, table, capital = _prepare(
+    tin, tout, depth, dem, dem2, lcost, lloss, hl, table, capital = _prepare(
         n, parent, pedge, roots, np.ascontiguousarray(est.demand_lps, float),
         np.ascontiguousarray(est.need_m, float), *arr)
     in_tree = np.zeros(len(edges), bool)
     in_tree[pedge[pedge >= 0]] = True
-    cand = np.flatnonzero(~in_tree & (fixed < np.inf) & (length < np.inf))
+    cand = np.flatnonzero(~in_tree & (arr[1] < np.inf) & (arr[0] < np.inf))
     hp = float(est.head_price) if len(roots) == 1 else 0.0
     d, a, c = _scan(n, np.ascontiguousarray(edges, np.int64), cand, parent, pedge, tin, tout,
-                    depth, dem, lcost, lloss, hl, table, *arr, hp, int(max_hops),
+                    depth, dem, dem2, lcost, lloss, hl, table, *arr, hp, int(max_hops),
                     np.ascontiguousarray(root_of, np.int64))
     base = capital + hp * (_rmax_py(table, n))
     return d, a, c, base
@@ -903,19 +928,26 @@ class DesignPricer:
         return int(res.summary.get("n_failures", 0)), whole_life_cost(res.summary), res
 
 
-def _head_price(summary):
-    """Price of one metre of source head from a design summary (0 when none is given)."""
+def _head_price(summary, prices=None):
+    """Price of one metre of pump head from a design summary (0 when it reports no pump).
+
+    Energy present value per metre of head, plus the pump station's price per kW
+    times the shaft power per metre of head when *prices* (a PriceTable) is given.
+    """
     pump = summary.get("pump")
     if isinstance(pump, dict):
-        h = float(pump.get("head_m", 0.0) or 0.0)
-        pv = float(pump.get("energy_cost_pv", 0.0) or 0.0)
-        if h > 0 and pv > 0:
-            return pv / h
+        h = pump.get("head_m", 0.0)
+        h = float(np.sum(h)) if h is not None else 0.0
+        pv = float(np.sum(pump.get("energy_cost_pv", 0.0) or 0.0))
+        kw = float(np.sum(pump.get("shaft_kw", 0.0) or 0.0))
+        per_kw = float(getattr(prices, "pump_station_per_kw", 0.0) or 0.0)
+        if h > 0 and (pv > 0 or kw > 0):
+            return (pv + per_kw * kw) / h
     return 0.0
 
 
 def whole_cost_tree(n, edges, weights, roots, pricer, est, *, settings=None, prim=None,
-                    allow_forest=False):
+                    allow_forest=False, prices=None):
     """Start trees over the α values, then link exchange from the best.
 
     Parameters
@@ -930,6 +962,9 @@ def whole_cost_tree(n, edges, weights, roots, pricer, est, *, settings=None, pri
     settings : WholeCostSettings, optional
     prim : Tree, optional
         Prim's tree if already grown (must equal ``tradeoff_tree(.., 0)``).
+    allow_forest : bool, default False
+    prices : PriceTable, optional
+        For the pump station's price per kW in the estimate's price of head.
 
     Returns
     -------
@@ -959,7 +994,7 @@ def whole_cost_tree(n, edges, weights, roots, pricer, est, *, settings=None, pri
     best = min(starts, key=lambda x: (x[2][0], x[2][1], x[0]))
     alpha0, tree0, sc0 = best
     payload = sc0[2]
-    hp = _head_price(getattr(payload, "summary", {}) or {})
+    hp = _head_price(getattr(payload, "summary", {}) or {}, prices)
     est = replace(est, head_price=hp if hp > 0 else est.head_price)
     tree, score, stats = exchange_search(n, edges, weights, tree0, pricer, est, settings=s,
                                          start_score=sc0, budget_used=n_eval)
@@ -1018,7 +1053,7 @@ def grow_whole_cost(sites, edges, costs, elev, root_idx, prim_sub, keep, *, desi
     Tree over the passable subset, with a ``search`` dict (see
     :func:`whole_cost_tree`, plus ``n_moves`` and ``prim_tree``).
     """
-    from .layout import _design_settings
+    from .layout import _basis_fields, _design_settings
 
     if system != "pressure":
         raise InputError("option --layout whole-cost sizes pressure mains to price each tree; "
@@ -1044,11 +1079,21 @@ def grow_whole_cost(sites, edges, costs, elev, root_idx, prim_sub, keep, *, desi
     kw = {"xy": sites.xy, "elevation_m": np.asarray(elev, float),
           "demand_lps": np.asarray(sites.demand, float), "node_id": np.asarray(sites.node_id),
           "settings": ds}
+    # the sites' own design fields, passed exactly as the layout's design step passes them
+    cols = {k: np.asarray(getattr(sites, k), float)
+            for k in ("area_ha", "runoff_c", "population", "min_pressure_m")
+            if getattr(sites, k, None) is not None}
+    kw.update(_basis_fields(cols))
+    pmin = None
+    if "min_pressure_m" in kw:
+        own = np.asarray(kw["min_pressure_m"], float)
+        pmin = np.where(np.isfinite(own), own, ds.min_pressure_m)
     pricer = DesignPricer("pressure", kw, sub, length, surf, land, prof)
     est = RuleEstimate.from_design(ds, demand_lps=sites.demand, elevation_m=elev,
-                                   length_m=surf, land_cost=land)
+                                   length_m=surf, land_cost=land, min_pressure_m=pmin)
     tree, info = whole_cost_tree(n, sub, w, np.asarray(prim_sub.roots, np.int64), pricer, est,
-                                 settings=s, prim=prim_sub, allow_forest=allow_forest)
+                                 settings=s, prim=prim_sub, allow_forest=allow_forest,
+                                 prices=ds.price_table())
     info["n_candidates_searched"] = int(len(sub))
     return _searched(tree, info)
 

@@ -141,13 +141,16 @@ def _base(n, e, t, est):
     return estimate_moves(n, e, t.parent, t.parent_edge, t.roots, t.root_of, est)[3]
 
 
-@settings(max_examples=25, deadline=None, derandomize=True)
-@given(st.integers(0, 10_000), st.integers(3, 25), st.sampled_from([0.0, 50.0]))
-def test_move_estimates_equal_recomputed_totals(seed, n, head_price):
+@settings(max_examples=30, deadline=None, derandomize=True)
+@given(st.integers(0, 10_000), st.integers(3, 25), st.sampled_from([0.0, 50.0]), st.booleans())
+def test_move_estimates_equal_recomputed_totals(seed, n, head_price, clement):
     # the O(cycle) incremental estimate of every move equals the estimate of the tree
-    # the move makes, recomputed from scratch
+    # the move makes, recomputed from scratch (continuous and Clement on-demand flows)
+    from dataclasses import replace
     e, w = _graph(seed, n, extra=1.5)
     est = _estimate(n, e, seed, head_price)
+    if clement:
+        est = replace(est, clement_r=1 / 3, clement_u=1.645)
     t = tradeoff_tree(n, e, w, 0.2)
     d, a, c, base = estimate_moves(n, e, t.parent, t.parent_edge, t.roots, t.root_of, est,
                                    max_hops=n)
@@ -206,7 +209,8 @@ def test_link_exchange_never_raises_cost(seed, n, per_pass):
     rng = np.random.default_rng(seed + 1)
     demand = rng.random(n) * 5
     est = _estimate(n, e, seed, 0.0)
-    est = est.__class__(**{**est.__dict__, "demand_lps": demand})
+    from dataclasses import replace
+    est = replace(est, demand_lps=demand)
     price = _simple_price(e, demand, est.length_m)
     seen = []
 
@@ -342,3 +346,26 @@ def test_cli_layout_choices_come_from_layout():
     act = next(a for sp in p._subparsers._group_actions for a in sp.choices["plan"]._actions
                if a.dest == "layout")
     assert tuple(act.choices) == LAYOUTS and "whole-cost" in LAYOUTS
+
+
+def test_project_file_and_cli(tmp_path, capsys, points_file):
+    from tests.conftest import run_cli
+
+    s = _scheme(16, seed=3)
+    sites = points_file(s.xy, z=s.elevation, fields={
+        "id": s.node_id.astype(str), "role": s.role.astype(str), "q_lps": s.demand})
+    proj = tmp_path / "p.toml"
+    proj.write_text(f'[sites]\npath = "{sites}"\ndemand_field = "q_lps"\n'
+                    '[tree]\nuse_site_z = true\nlayout = "whole-cost"\n'
+                    '[design]\nsystem = "pressure"\n')
+    code, out, err = run_cli(["plan", proj, "--out", tmp_path / "a.gpkg", "--quiet"], capsys)
+    assert code == 0, err
+    assert "whole-cost tree whole-life cost" in out
+    import pyogrio
+    info = pyogrio.read_dataframe(tmp_path / "a.gpkg", layer="run_info")
+    info = dict(zip(info["key"], info["value"]))
+    assert info["layout"] == "whole-cost" and "local optimum" in info["whole_cost_layout"]
+    assert float(info["whole_life_cost"]) <= float(info["prim_whole_life_cost"])
+    code, out, err = run_cli(["plan", "--sites", sites, "--layout", "whole-cost",
+                              "--out", tmp_path / "b.gpkg", "--quiet"], capsys)
+    assert code == 2 and "--system pressure" in err
