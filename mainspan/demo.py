@@ -184,7 +184,7 @@ def _pump_head(summary):
     the source must deliver (grade at the source minus its ground)."""
     pump = summary.get("pump")
     if isinstance(pump, dict) and pump.get("head_m") is not None:
-        return float(pump["head_m"])
+        return float(np.max(pump["head_m"]))
     return float(max(summary.get("source_pressure_head_m") or [np.nan]))
 
 

@@ -30,9 +30,11 @@ The search
    is skipped).  Passes repeat until a pass takes no move or the evaluation budget
    is spent.
 
-The estimate prices a move in O(length of the cycle): pipes chosen by the rule
-(smallest catalog pipe within the velocity cap and head-loss budget) for the
-changed flows, trench as in the design stage, land cost, plus the change in the
+The estimate prices a move in O(length of the cycle): pipes for the changed flows
+chosen link by link (each the catalog pipe of least price + price of head × its
+loss, between the smallest within the velocity cap and the rule's; the rule's
+pipe when there is no pump energy to price), trench as in the design stage, land
+cost, plus the change in the
 required source head (maximum over the sites of ground + minimum pressure +
 head loss from the source, kept exact under the estimate's pipes with a
 sparse table of range maxima over a depth-first order) times the price of a
@@ -86,8 +88,10 @@ class WholeCostSettings:
     max_hops : int, default 12
         A move drops a tree link at most this many links along the cycle from
         either end of the added link (the neighbourhood limit).
-    per_pass : int, default 8
-        Moves priced by a full design per pass, best estimate first.
+    per_pass : int, default 48
+        Moves priced by a full design per pass, best estimate first (the
+        estimate ranks well for rule sizing; least-cost sizing re-balances
+        pipes and pump head globally, so more of the ranking is priced).
     max_evaluations : int, default 400
         Full designs in all, start trees included; the search stops there and
         ``run_info`` says so.
@@ -95,7 +99,7 @@ class WholeCostSettings:
 
     alphas: tuple = (0.0, 0.1, 0.2, 0.3, 0.5, 1.0)
     max_hops: int = 12
-    per_pass: int = 8
+    per_pass: int = 48
     max_evaluations: int = 400
 
     def __post_init__(self):
@@ -348,12 +352,15 @@ def tradeoff_tree(n_nodes, edges, weights, alpha, *, roots=(0,), allow_forest=Fa
 class RuleEstimate:
     """Cheap price of a tree used to *rank* exchanges (never to accept them).
 
-    Link cost = ``unit_cost[p] · length[e] + fixed[e]`` with pipe ``p`` the first
-    catalog row whose ``qmax_m3ps`` holds the link's design flow (the last row if
-    none); head loss = ``length[e]`` × gradient of pipe ``p`` at that flow,
-    interpolated log-log in ``grad_table`` over ``q_grid``.  Source head
-    required = max over nodes of ``need_m`` + head loss from the root;
-    ``head_price`` prices a metre of it (0 disables the head term).
+    Link cost = ``unit_cost[p] · length[e] + fixed[e]``; head loss = ``length[e]``
+    × gradient of pipe ``p`` at the link's design flow, interpolated log-log in
+    ``grad_table`` over ``q_grid``.  Source head required = max over nodes of
+    ``need_m`` + head loss from the root; ``head_price`` prices a metre of it.
+    With ``head_price`` 0, pipe ``p`` is the rule's: the first catalog row whose
+    ``qmax_m3ps`` holds the flow (the last row if none).  With a price of head,
+    ``p`` is the row of least ``unit_cost · L + head_price · loss`` from the
+    smallest within the velocity cap to one above the rule's -- the trade
+    least-cost sizing makes where the loss sets the pump head.
 
     Attributes
     ----------
@@ -363,6 +370,8 @@ class RuleEstimate:
     length_m, fixed : ndarray (m,)
         Per candidate: pipe length and flow-independent cost (land).
     qmax_m3ps, unit_cost : ndarray (P,)
+    qmaxv_m3ps : ndarray (P,) or None
+        Largest flow within the velocity cap alone (None: ``qmax_m3ps``).
     q_grid : ndarray (G,)
     grad_table : ndarray (P, G)
         Head-loss gradient (m/m) of each pipe at each grid flow.
@@ -385,6 +394,7 @@ class RuleEstimate:
     head_price: float = 0.0
     clement_r: float = 0.0
     clement_u: float = 0.0
+    qmaxv_m3ps: np.ndarray | None = None
 
     @classmethod
     def from_design(cls, settings, *, demand_lps, elevation_m, length_m, land_cost=None,
@@ -442,15 +452,34 @@ class RuleEstimate:
                    qmax_m3ps=lo, unit_cost=np.asarray(cat.cost_per_m, float) + trench,
                    q_grid=q_grid, grad_table=table, peaking_factor=float(s.peaking_factor),
                    min_flow_lps=float(s.min_flow_lps), head_price=float(head_price),
-                   clement_r=cr, clement_u=cu)
+                   clement_r=cr, clement_u=cu, qmaxv_m3ps=s.velocity_max_mps * area)
 
 
 @numba.njit(cache=True, inline="always")
-def _link(e, d_lps, d2, length, fixed, qmax, unit, lq, lgrad, gzero, peak, qmin, cr, cu):
-    """(cost, head loss) of candidate e carrying subtree demand d_lps under the rule.
+def _grad(p, q, lq, lgrad, gzero):
+    """Head-loss gradient (m/m) of pipe p at flow q (m3/s), log-log interpolated."""
+    x = np.log(q)
+    G = lq.shape[0]
+    if x <= lq[0]:
+        return gzero[p] * q / np.exp(lq[0])          # below the table: linear in q
+    k = np.searchsorted(lq, x) - 1
+    if k >= G - 1:
+        k = G - 2
+    t = (x - lq[k]) / (lq[k + 1] - lq[k])
+    return np.exp(lgrad[p, k] + t * (lgrad[p, k + 1] - lgrad[p, k]))
+
+
+@numba.njit(cache=True, inline="always")
+def _link(e, d_lps, d2, length, fixed, qmax, qmaxv, unit, lq, lgrad, gzero, peak, qmin, cr, cu,
+          lam):
+    """(cost, head loss) of candidate e carrying subtree demand d_lps.
 
     ``d2`` is the subtree sum of squared demands; with ``cr > 0`` the flow is
-    Clément's ``min(r·Σq + U·sqrt(r(1-r)·Σq²), Σq)`` (r = cr, U = cu).
+    Clément's ``min(r·Σq + U·sqrt(r(1-r)·Σq²), Σq)`` (r = cr, U = cu).  The pipe is
+    the rule's (first row whose ``qmax`` holds the flow) when ``lam`` is 0; with a
+    price of head ``lam`` > 0 it is the row, from the smallest within the velocity
+    cap (``qmaxv``) to one above the rule's, of least ``unit·L + lam·loss`` -- the
+    choice least-cost sizing makes on the path that sets the pump head.
     """
     if cr > 0.0:
         f = min(cr * d_lps + cu * np.sqrt(max(cr * (1.0 - cr) * d2, 0.0)), d_lps)
@@ -463,25 +492,31 @@ def _link(e, d_lps, d2, length, fixed, qmax, unit, lq, lgrad, gzero, peak, qmin,
         if q <= qmax[j]:
             p = j
             break
-    cost = unit[p] * length[e] + fixed[e]
     if q <= 0.0:
-        return cost, 0.0
-    x = np.log(q)
-    G = lq.shape[0]
-    if x <= lq[0]:
-        g = gzero[p] * q / np.exp(lq[0])          # laminar-like tail: linear in q
-    else:
-        k = np.searchsorted(lq, x) - 1
-        if k >= G - 1:
-            k = G - 2
-        t = (x - lq[k]) / (lq[k + 1] - lq[k])
-        g = np.exp(lgrad[p, k] + t * (lgrad[p, k + 1] - lgrad[p, k]))
-    return cost, g * length[e]
+        return unit[p] * length[e] + fixed[e], 0.0
+    if lam <= 0.0:
+        return unit[p] * length[e] + fixed[e], _grad(p, q, lq, lgrad, gzero) * length[e]
+    pv = p
+    for j in range(p + 1):
+        if q <= qmaxv[j]:
+            pv = j
+            break
+    best = np.inf
+    pb = p
+    gb = 0.0
+    for j in range(pv, min(p + 1, P - 1) + 1):
+        g = _grad(j, q, lq, lgrad, gzero)
+        c = (unit[j] + lam * g) * length[e]
+        if c < best:
+            best = c
+            pb = j
+            gb = g
+    return unit[pb] * length[e] + fixed[e], gb * length[e]
 
 
 @numba.njit(cache=True)
-def _prepare(n, parent, pedge, roots, demand, need, length, fixed, qmax, unit, lq, lgrad,
-             gzero, peak, qmin, cr, cu):  # pragma: no cover - compiled
+def _prepare(n, parent, pedge, roots, demand, need, length, fixed, qmax, qmaxv, unit, lq, lgrad,
+             gzero, peak, qmin, cr, cu, lam):  # pragma: no cover - compiled
     """Depth-first order, subtree demand, rule cost/head loss and a range-max table."""
     nchild = np.zeros(n + 1, np.int64)
     for v in range(n):
@@ -533,8 +568,8 @@ def _prepare(n, parent, pedge, roots, demand, need, length, fixed, qmax, unit, l
         v = pre[i]
         p = parent[v]
         if p >= 0:
-            c, h = _link(pedge[v], dem[v], dem2[v], length, fixed, qmax, unit, lq, lgrad, gzero,
-                         peak, qmin, cr, cu)
+            c, h = _link(pedge[v], dem[v], dem2[v], length, fixed, qmax, qmaxv, unit, lq, lgrad,
+                         gzero, peak, qmin, cr, cu, lam)
             lcost[v] = c
             lloss[v] = h
             hl[v] = hl[p] + h
@@ -566,14 +601,15 @@ def _rmax(table, lo, hi):
 
 @numba.njit(cache=True)
 def _scan(n, edges, cand, parent, pedge, tin, tout, depth, dem, dem2, lcost, lloss, hl, table,
-          length, fixed, qmax, unit, lq, lgrad, gzero, peak, qmin, cr, cu, head_price, max_hops,
-          root_of):  # pragma: no cover - compiled
+          length, fixed, qmax, qmaxv, unit, lq, lgrad, gzero, peak, qmin, cr, cu, head_price,
+          max_hops, root_of):  # pragma: no cover - compiled
     """Estimated change of every exchange: (delta, added link, child end of dropped link)."""
     cap = 1024
     out_d = np.empty(cap)
     out_e = np.empty(cap, np.int64)
     out_c = np.empty(cap, np.int64)
     cnt = 0
+    lam = head_price
     H0 = _rmax(table, 0, n)
     pa = np.empty(n, np.int64)
     pb = np.empty(n, np.int64)
@@ -629,25 +665,26 @@ def _scan(n, edges, cand, parent, pedge, tin, tout, depth, dem, dem2, lcost, llo
                 for t in range(j + 1, la):
                     v = pa[t]
                     cc, hh = _link(pedge[v], dem[v] - DS, dem2[v] - DS2, length, fixed, qmax,
-                                   unit, lq, lgrad, gzero, peak, qmin, cr, cu)
+                                   qmaxv, unit, lq, lgrad, gzero, peak, qmin, cr, cu, lam)
                     delta += cc - lcost[v]
                     hA[t] = hh
                 # links on b's side gain it
                 for t in range(lb):
                     v = pb[t]
                     cc, hh = _link(pedge[v], dem[v] + DS, dem2[v] + DS2, length, fixed, qmax,
-                                   unit, lq, lgrad, gzero, peak, qmin, cr, cu)
+                                   qmaxv, unit, lq, lgrad, gzero, peak, qmin, cr, cu, lam)
                     delta += cc - lcost[v]
                     hB[t] = hh
                 # the cut-off path c .. a turns round; a hangs from b through e
                 for t in range(j + 1):
                     delta -= lcost[pa[t]]
-                ce, he_ = _link(e, DS, DS2, length, fixed, qmax, unit, lq, lgrad, gzero, peak,
-                                qmin, cr, cu)
+                ce, he_ = _link(e, DS, DS2, length, fixed, qmax, qmaxv, unit, lq, lgrad, gzero,
+                                peak, qmin, cr, cu, lam)
                 delta += ce
                 for t in range(1, j + 1):
                     cc, hh = _link(pedge[pa[t - 1]], DS - dem[pa[t - 1]], DS2 - dem2[pa[t - 1]],
-                                   length, fixed, qmax, unit, lq, lgrad, gzero, peak, qmin, cr, cu)
+                                   length, fixed, qmax, qmaxv, unit, lq, lgrad, gzero, peak, qmin,
+                                   cr, cu, lam)
                     delta += cc
                     hS[t] = hh
                 if head_price > 0.0:
@@ -714,8 +751,10 @@ def _estimate_arrays(est):
     lq = np.log(est.q_grid)
     with np.errstate(divide="ignore"):
         lgrad = np.log(np.maximum(est.grad_table, 1e-300))
+    qv = est.qmax_m3ps if est.qmaxv_m3ps is None else est.qmaxv_m3ps
     return (np.ascontiguousarray(est.length_m, float), np.ascontiguousarray(est.fixed, float),
-            np.ascontiguousarray(est.qmax_m3ps, float), np.ascontiguousarray(est.unit_cost, float),
+            np.ascontiguousarray(est.qmax_m3ps, float), np.ascontiguousarray(qv, float),
+            np.ascontiguousarray(est.unit_cost, float),
             lq, np.ascontiguousarray(lgrad), np.ascontiguousarray(est.grad_table[:, 0]),
             float(est.peaking_factor), float(est.min_flow_lps), float(est.clement_r),
             float(est.clement_u))
@@ -738,13 +777,13 @@ def estimate_moves(n, edges, parent, parent_edge, roots, root_of, est, *, max_ho
     pedge = np.ascontiguousarray(parent_edge, np.int64)
     roots = np.ascontiguousarray(roots, np.int64)
     arr = _estimate_arrays(est)
+    hp = float(est.head_price) if len(roots) == 1 else 0.0
     tin, tout, depth, dem, dem2, lcost, lloss, hl, table, capital = _prepare(
         n, parent, pedge, roots, np.ascontiguousarray(est.demand_lps, float),
-        np.ascontiguousarray(est.need_m, float), *arr)
+        np.ascontiguousarray(est.need_m, float), *arr, hp)
     in_tree = np.zeros(len(edges), bool)
     in_tree[pedge[pedge >= 0]] = True
     cand = np.flatnonzero(~in_tree & (arr[1] < np.inf) & (arr[0] < np.inf))
-    hp = float(est.head_price) if len(roots) == 1 else 0.0
     d, a, c = _scan(n, np.ascontiguousarray(edges, np.int64), cand, parent, pedge, tin, tout,
                     depth, dem, dem2, lcost, lloss, hl, table, *arr, hp, int(max_hops),
                     np.ascontiguousarray(root_of, np.int64))
@@ -1103,7 +1142,7 @@ def _grade_at_source(summary):
     pump = summary.get("pump")
     head = None
     if isinstance(pump, dict) and pump.get("head_m") is not None:
-        head = float(pump["head_m"])
+        head = float(np.max(pump["head_m"]))          # the largest, with several sources
     src = summary.get("source_hgl_m")
     grade = float(np.max(src)) if src is not None and len(src) else None
     return head, grade
@@ -1130,7 +1169,7 @@ def search_run_info(search, design=None):
             f"(alpha {', '.join(f'{a:g}' for a in sorted(search['start_costs']))}; best start "
             f"alpha {search['start_alpha']:g}); a move adds a candidate link and drops a tree "
             f"link at most {s.max_hops} links from its ends on the cycle; each pass prices the "
-            f"{s.per_pass} moves ranked best by a rule-sizing estimate with the full design and "
+            f"{s.per_pass} moves ranked best by a cheap sizing estimate with the full design and "
             "takes each that lowers the whole-life cost without adding a failing check; "
             + ("in the last pass none of them lowered it" if search["converged"] else
                f"stopped at the budget of {s.max_evaluations} designs before convergence")),
