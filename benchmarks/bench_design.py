@@ -202,11 +202,13 @@ def bench_demo(repeat=3):
 
 
 # --- whole11: the whole-cost layout at scale ---
-def hydrant_sites(n, seed=0, per_source=300, lps=0.05):
-    """The same generated hydrants as :func:`hydrant_network`, as sites for ``plan_layout``."""
+def hydrant_sites(n, seed=0, total_lps=100.0):
+    """The generated hydrants of :func:`hydrant_network` as sites for ``plan_layout``, with one
+    pump station (the whole-cost search prices one pump head) and ``total_lps`` in all, about
+    the demo's 90 L/s, so that the largest catalog pipe carries it."""
     import mainspan as ms
 
-    case = hydrant_network(n, seed, per_source, lps)
+    case = hydrant_network(n, seed, per_source=n, lps=total_lps / (n - 1))
     role = np.full(n, "demand", dtype=object)
     role[case["roots"]] = "source"
     xy = case["xy"] + [500_000.0, 5_000_000.0]          # UTM 33N, near its central meridian
