@@ -161,6 +161,58 @@ def depth_of(tree):
 # tests
 # ------------------------------------------------------------------------------------------
 
+@pytest.mark.parametrize("seed", range(3))
+def test_deep_path_every_lighter_link_on_a_long_cycle(seed):
+    """On a tree 300 nodes deep, one chord spanning most of it; swapping out each of the
+    lighter links on its cycle in turn (every position along the path, the heaviest
+    included) must be rejected every time and name the link taken out."""
+    rng = np.random.default_rng(seed)
+    n = 300
+    path = np.column_stack([np.arange(n - 1), np.arange(1, n)])
+    chord = np.array([[5, n - 7]])
+    edges = np.vstack([path, chord])
+    w = np.concatenate([rng.integers(1, 50, n - 1), [60]]).astype(float)
+    w[rng.integers(5, n - 7)] = 59.0                 # one heaviest lighter link, anywhere
+    tree = prim_tree(n, edges, w)
+    assert depth_of(tree) == n - 1
+    c0 = certify_tree(n, edges, w, tree)
+    cyc = np.arange(5, n - 7)                         # path links between 5 and n-7
+    assert c0.ok and c0.worst_margin == 60.0 - w[cyc].max() == 1.0
+    f = n - 1                                         # the chord's index
+    for e in cyc.tolist():
+        links = (set(range(n - 1)) - {e}) | {f}
+        wrong = tree_from_links(n, edges, w, links, [0])
+        cert = certify_tree(n, edges, w, wrong)
+        # e is the only non-tree link, so it is the one named, with margin w[e] - 60
+        assert not cert.ok and cert.violating_edge == e, e
+        assert cert.worst_margin == w[e] - 60.0
+        assert cert.n_checked == 1
+
+
+def test_deep_path_chords_margins_match_networkx_at_every_depth():
+    """A 512-node path (so every jump length of the skew-binary scheme occurs) with one
+    chord from each node to a node further down: the worst margin must equal networkx's for
+    each chord on its own, i.e. every single path-maximum query is right."""
+    rng = np.random.default_rng(7)
+    n = 512
+    path = np.column_stack([np.arange(n - 1), np.arange(1, n)])
+    w_path = rng.permutation(n - 1).astype(float)     # distinct, so one answer per query
+    tree_links = list(range(n - 1))
+    g = tree_graph(path, w_path, tree_links, [0])
+    for a in range(0, n - 2, 3):
+        b = int(rng.integers(a + 2, n))
+        edges = np.vstack([path, [[a, b]]])
+        mx = max(w_path[k] for k in cycle_links(g, a, b))    # networkx path maximum
+        w = np.concatenate([w_path, [mx + 0.5]])
+        tree = tree_from_links(n, edges, w, tree_links, [0])
+        cert = certify_tree(n, edges, w, tree)
+        assert cert.ok and cert.worst_margin == 0.5, (a, b)
+        w[-1] = mx - 0.5                                      # now the tree is not minimum
+        tree = tree_from_links(n, edges, w, tree_links, [0])
+        cert = certify_tree(n, edges, w, tree)
+        assert not cert.ok and cert.violating_edge == n - 1 and cert.worst_margin == -0.5
+
+
 @settings(**SETTINGS)
 @given(graphs())
 def test_worst_margin_equals_networkx_path_maxima(g):
@@ -221,55 +273,3 @@ def test_every_lighter_cycle_link_swapped_out_is_rejected(g, data):
             else:
                 assert cert.ok and cert.violating_edge == -1
                 assert wrong.weight == pytest.approx(tree.weight, rel=1e-12)
-
-
-@pytest.mark.parametrize("seed", range(3))
-def test_deep_path_every_lighter_link_on_a_long_cycle(seed):
-    """On a tree 300 nodes deep, one chord spanning most of it; swapping out each of the
-    lighter links on its cycle in turn (every position along the path, the heaviest
-    included) must be rejected every time and name the link taken out."""
-    rng = np.random.default_rng(seed)
-    n = 300
-    path = np.column_stack([np.arange(n - 1), np.arange(1, n)])
-    chord = np.array([[5, n - 7]])
-    edges = np.vstack([path, chord])
-    w = np.concatenate([rng.integers(1, 50, n - 1), [60]]).astype(float)
-    w[rng.integers(5, n - 7)] = 59.0                 # one heaviest lighter link, anywhere
-    tree = prim_tree(n, edges, w)
-    assert depth_of(tree) == n - 1
-    c0 = certify_tree(n, edges, w, tree)
-    cyc = np.arange(5, n - 7)                         # path links between 5 and n-7
-    assert c0.ok and c0.worst_margin == 60.0 - w[cyc].max() == 1.0
-    f = n - 1                                         # the chord's index
-    for e in cyc.tolist():
-        links = (set(range(n - 1)) - {e}) | {f}
-        wrong = tree_from_links(n, edges, w, links, [0])
-        cert = certify_tree(n, edges, w, wrong)
-        # e is the only non-tree link, so it is the one named, with margin w[e] - 60
-        assert not cert.ok and cert.violating_edge == e, e
-        assert cert.worst_margin == w[e] - 60.0
-        assert cert.n_checked == 1
-
-
-def test_deep_path_chords_margins_match_networkx_at_every_depth():
-    """A 512-node path (so every jump length of the skew-binary scheme occurs) with one
-    chord from each node to a node further down: the worst margin must equal networkx's for
-    each chord on its own, i.e. every single path-maximum query is right."""
-    rng = np.random.default_rng(7)
-    n = 512
-    path = np.column_stack([np.arange(n - 1), np.arange(1, n)])
-    w_path = rng.permutation(n - 1).astype(float)     # distinct, so one answer per query
-    tree_links = list(range(n - 1))
-    g = tree_graph(path, w_path, tree_links, [0])
-    for a in range(0, n - 2, 3):
-        b = int(rng.integers(a + 2, n))
-        edges = np.vstack([path, [[a, b]]])
-        mx = max(w_path[k] for k in cycle_links(g, a, b))    # networkx path maximum
-        w = np.concatenate([w_path, [mx + 0.5]])
-        tree = tree_from_links(n, edges, w, tree_links, [0])
-        cert = certify_tree(n, edges, w, tree)
-        assert cert.ok and cert.worst_margin == 0.5, (a, b)
-        w[-1] = mx - 0.5                                      # now the tree is not minimum
-        tree = tree_from_links(n, edges, w, tree_links, [0])
-        cert = certify_tree(n, edges, w, tree)
-        assert not cert.ok and cert.violating_edge == n - 1 and cert.worst_margin == -0.5
