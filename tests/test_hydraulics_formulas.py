@@ -42,6 +42,18 @@ def test_hazen_williams_worked_values(q, d, length, c, expected):
     assert hazen_williams_headloss_m(q, d, length, c) == pytest.approx(expected, rel=0.005)
 
 
+def test_hazen_williams_exponents_exact():
+    # The 0.5 % above covers the spread of the published constant, not of the exponents:
+    # ratios of losses cancel the constant, so the SI form's exponents (Q^1.852, C^-1.852,
+    # D^-4.87; Williams & Hazen 1920, from memory) are checked exactly, and L^1.
+    h = hazen_williams_headloss_m
+    base = h(0.02, 0.15, 250.0, 140.0)
+    assert h(0.04, 0.15, 250.0, 140.0) / base == pytest.approx(2.0 ** 1.852, rel=1e-12)
+    assert h(0.02, 0.30, 250.0, 140.0) / base == pytest.approx(0.5 ** 4.87, rel=1e-12)
+    assert h(0.02, 0.15, 250.0, 100.0) / base == pytest.approx(1.4 ** 1.852, rel=1e-12)
+    assert h(0.02, 0.15, 500.0, 140.0) / base == pytest.approx(2.0, rel=1e-12)
+
+
 def test_colebrook_published_value():
     # Re 1e5, eps/D 1e-4 -> 0.0185139, value printed in the fluids documentation
     # of fluids.friction.Colebrook (C. F. White's Colebrook 1939 equation, fluids docs)
