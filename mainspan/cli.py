@@ -13,14 +13,14 @@ import sys
 
 from ._version import __version__
 from .errors import DataFileError, InputError, MainspanError
-from .project import check_design_keys
+from .messages import CAUTION, format_quantities, print_design
+from .messages import progress as _progress
+from .preflight import inputs_of as _inputs_of  # noqa: F401 - older private name
+from .preflight import preflight_compare, preflight_outputs  # noqa: F401
+
+_print_design = print_design   # the older private name, kept for callers
 
 __all__ = ["main"]
-
-CAUTION = ("CAUTION: preliminary design aid only. Check with a licensed engineer against local "
-           "codes and utility standards; locate existing services before any digging; trenches "
-           "deeper than about 1.5 m need shoring under most safety rules.")
-
 
 class _Parser(argparse.ArgumentParser):
     def error(self, message):  # one line, exit 2, as for every bad input
@@ -28,165 +28,111 @@ class _Parser(argparse.ArgumentParser):
                   if " " in self.prog else f"mainspan: error: {message}\n")
 
 
-def _progress(quiet):
-    if quiet:
-        return None
-    last = {}
-
-    def say(stage, done, total):
-        if done == 0 and stage not in last:
-            last[stage] = -1.0
-            print(f"[mainspan] {stage} …", file=sys.stderr, flush=True)
-        elif stage.startswith("stability") and total and done:
-            # long, repeated work: a line every 10 % so that the user sees it moving
-            step = int(10 * done / total)
-            if step > last.get(stage, -1):
-                last[stage] = step
-                print(f"[mainspan] {stage} {done}/{total}", file=sys.stderr, flush=True)
-    return say
-
-
 # --------------------------------------------------------------------- options
-def _site_options(p):
-    g = p.add_argument_group("sites")
-    g.add_argument("--sites", metavar="FILE", help="point layer of sites (any OGR format or CSV)")
-    g.add_argument("--layer", help="layer of a multi-layer sites file")
-    g.add_argument("--id-field", help="field holding site ids (default: 'id' if present)")
-    g.add_argument("--role-field", help="field holding roles: source, outlet, demand, junction "
-                   "(default: 'role' if present)")
-    g.add_argument("--demand-field", help="field holding demands in L/s "
-                   "(default: 'demand_lps' if present)")
-    g.add_argument("--elevation-field", help="field holding site elevations in metres")
-    g.add_argument("--x-field", help="CSV column of x / longitude (default x)")
-    g.add_argument("--y-field", help="CSV column of y / latitude (default y)")
-    g.add_argument("--sites-crs", metavar="CRS",
-                   help="CRS of the site coordinates: needed when the file has none (CSV); "
-                   "when given, it overrides the file's own CRS (to correct a wrong one)")
-    g.add_argument("--crs", metavar="CRS", help="working CRS (projected); default: the input's "
-                   "projected CRS or the UTM zone holding most sites")
-    g.add_argument("--merge-within", type=float, metavar="M",
-                   help="merge sites closer than M metres instead of failing")
+# Every plan option comes from the settings schema (mainspan.settings): the flag is the
+# project-file key with dashes, older spellings stay as hidden aliases.
+def _dest(s):
+    return f"{s.section}__{s.key}"
 
 
-def _raster_options(p):
-    g = p.add_argument_group("ground")
-    g.add_argument("--terrain", metavar="DEM", help="terrain raster (DEM)")
-    g.add_argument("--land-cost", action="append", metavar="[NAME=]RASTER",
-                   help="land-cost raster, cost per metre of main; repeat with names")
-    g.add_argument("--cost-expression", metavar="EXPR",
-                   help="unit cost per metre from the named land-cost rasters, "
-                   "e.g. 'base + where(wet > 0, 200, 0)'")
-    g.add_argument("--raster-crs", metavar="CRS", help="CRS of rasters that carry none")
-    g.add_argument("--on-nodata", choices=("barrier", "skip", "error"),
-                   help="links crossing nodata or leaving a raster: barrier (default), skip, error")
-    g.add_argument("--sample-spacing-m", type=float, metavar="M",
-                   help="terrain sampling step (default half a cell)")
-    g.add_argument("--memory-limit", metavar="SIZE",
+def _help(s):
+    bits = [s.unit] if s.unit and s.unit != "-" else []
+    if s.default is not None and s.kind not in ("path", "table", "list"):
+        from .settings import format_default
+        bits.append(f"default {format_default(s)}")
+    if s.choices:
+        bits.insert(0, "one of " + ", ".join(s.choices))
+    text = s.help + (f" [{'; '.join(bits)}]" if bits else "")
+    return text.replace("%", "%%")
+
+
+_METAVAR = {"number": "X", "integer": "N", "text": "TEXT", "path": "FILE", "value": "VALUE",
+            "list": "ID", "table": "NAME=VALUE"}
+
+
+def _add_option(g, s):
+    kw = {"dest": _dest(s), "default": None}
+    if s.kind == "bool":
+        kw["action"] = argparse.BooleanOptionalAction
+    else:
+        kw["metavar"] = s.metavar or ("{" + ",".join(s.choices) + "}" if s.choices
+                                      else _METAVAR[s.kind])
+        if s.repeat:
+            kw["action"] = "append"
+    g.add_argument(s.option, help=_help(s), **kw)
+    for alias in s.aliases:        # deprecated spellings: still accepted, not listed
+        g.add_argument(alias, help=argparse.SUPPRESS, **kw)
+
+
+def _plan_options(p, *, output=True):
+    from .settings import SECTIONS, all_settings
+
+    groups = {}
+    for sec, title in SECTIONS.items():
+        if sec == "output" and not output:
+            continue
+        cli = [s for s in all_settings(sec) if s.on_cli]
+        if not cli:
+            continue
+        g = groups[sec] = p.add_argument_group(title)
+        for s in cli:
+            _add_option(g, s)
+    groups["design"].add_argument("--design", action="append", metavar="KEY=VALUE",
+                                  help="any design setting as KEY=VALUE, e.g. "
+                                  "velocity_max_mps=1.2 (repeatable; keys listed below)")
+
+
+def _run_options(p, *, quiet=True):
+    """Options of a run that are not plan settings (they change no result)."""
+    if quiet:
+        p.add_argument("--quiet", action="store_true", help="no progress on stderr")
+    p.add_argument("--memory-limit", metavar="SIZE",
                    help="refuse work estimated to need more memory than SIZE, e.g. 4G "
                    "(default: half the installed memory)")
-    g.add_argument("--use-site-z", action="store_true", default=None,
-                   help="use the sites' own Z for node elevations where given")
-    w = p.add_argument_group("cost weights")
-    for flag, key, hlp in (("--w-length", "length", "cost per metre of plan length (default 1)"),
-                           ("--w-land", "land", "multiplier on the land-cost integral (default 1)"),
-                           ("--w-climb", "climb", "cost per metre climbed"),
-                           ("--w-descent", "descent", "cost per metre descended"),
-                           ("--steep-slope-pct", "steep_slope_pct", "slope above which steep_per_m applies"),
-                           ("--w-steep", "steep_per_m", "cost per metre steeper than --steep-slope-pct"),
-                           ("--w-fixed", "fixed", "fixed cost per link")):
-        w.add_argument(flag, dest=f"w_{key}", type=float, metavar="X", help=hlp)
 
 
-def _tree_options(p):
-    g = p.add_argument_group("candidates and tree")
-    g.add_argument("--candidates", metavar="NAME",
-                   help="candidate builder: delaunay (default), knn, radius, complete, or a "
-                   "union such as delaunay+knn")
-    g.add_argument("--k", type=int, help="neighbours per site for knn (default 8)")
-    g.add_argument("--max-link-m", type=float, metavar="M", help="longest candidate link")
-    g.add_argument("--root", action="append", metavar="ID",
-                   help="root site id (repeatable); default: sites with role source/outlet")
-    g.add_argument("--allow-forest", action="store_true", default=None,
-                   help="return one tree per connected part instead of failing")
-    d = p.add_argument_group("design")
-    d.add_argument("--system", choices=("pressure", "gravity"), help="size and check the mains")
-    from .layout import LAYOUTS
-    d.add_argument("--layout", choices=LAYOUTS,
-                   help="tree: Prim's minimum tree (default); gravity: minimum arborescence "
-                   "towards the outlet with direction-dependent costs; whole-cost: the tree "
-                   "of least whole-life cost for pressure mains (sized pipes, trench, pump "
-                   "energy), searched from Prim's tree")
-    d.add_argument("--catalog", metavar="CSV", help="pipe catalog CSV")
-    d.add_argument("--prices", metavar="FILE",
-                   help="price table (CSV or TOML; `mainspan demo` writes a template)")
-    d.add_argument("--design", action="append", metavar="KEY=VALUE",
-                   help="any design setting, e.g. velocity_max_mps=1.2 (repeatable)")
+def _flags_to_settings(a):
+    """Settings and their origins (option names) from parsed options, each value checked."""
+    from .settings import all_settings, parse_items, parse_text, setting
 
+    s, origin = {}, {}
 
-def _parse_value(v):
-    low = v.lower()
-    if low in ("true", "yes"):
-        return True
-    if low in ("false", "no"):
-        return False
-    try:
-        return int(v)
-    except ValueError:
-        pass
-    try:
-        return float(v)
-    except ValueError:
-        return v
+    def put(st, val, where):
+        s.setdefault(st.section, {})[st.key] = val
+        origin[(st.section, st.key)] = where
 
-
-def _flags_to_settings(a) -> dict:
-    s: dict = {}
-
-    def put(sec, key, val):
-        if val is not None:
-            s.setdefault(sec, {})[key] = val
-
-    put("sites", "path", a.sites)
-    for k in ("layer", "id_field", "role_field", "demand_field", "elevation_field", "x_field",
-              "y_field", "sites_crs"):
-        put("sites", k, getattr(a, k))
-    put("sites", "merge_within_m", a.merge_within)
-    put("crs", "working", a.crs)
-    put("rasters", "terrain", a.terrain)
-    put("rasters", "raster_crs", a.raster_crs)
-    put("rasters", "on_nodata", a.on_nodata)
-    put("rasters", "sample_spacing_m", a.sample_spacing_m)
-    put("rasters", "cost_expression", a.cost_expression)
-    if a.land_cost:
-        lc = {}
-        for item in a.land_cost:
-            name, sep, p = item.partition("=")
-            if not sep:
-                name, p = ("land_cost" if not lc else f"land_cost{len(lc) + 1}"), item
-            if not name.isidentifier():
-                raise InputError(f"option --land-cost: name {name!r} must be a simple identifier "
-                                 "(letters, digits, _), as in --land-cost base=cost.tif")
-            lc[name] = p
-        put("rasters", "land_cost", lc)
-    for key in ("length", "land", "climb", "descent", "steep_slope_pct", "steep_per_m", "fixed"):
-        put("costs", key, getattr(a, f"w_{key}"))
-    put("candidates", "method", a.candidates)
-    put("candidates", "k", a.k)
-    put("candidates", "max_link_m", a.max_link_m)
-    put("tree", "roots", a.root)
-    put("tree", "allow_forest", a.allow_forest)
-    put("tree", "use_site_z", a.use_site_z)
-    put("tree", "layout", a.layout)
-    put("design", "system", a.system)
-    put("design", "catalog", a.catalog)
-    put("design", "prices", getattr(a, "prices", None))
-    for item in a.design or ():
+    for st in all_settings():
+        if not st.on_cli:
+            continue
+        v = getattr(a, _dest(st), None)
+        if v is None:
+            continue
+        where = f"option {st.option}"
+        if st.repeat:
+            put(st, parse_items(st, v, where), where)
+        elif st.kind == "bool":
+            put(st, bool(v), where)
+        else:
+            put(st, parse_text(st, v, where), where)
+    for item in getattr(a, "design", None) or ():
         k, sep, v = item.partition("=")
-        if not sep or not k:
+        if not sep or not k.strip():
             raise InputError(f"option --design: {item!r} must be KEY=VALUE, "
                              "e.g. --design velocity_max_mps=1.2")
-        put("design", k.strip(), _parse_value(v.strip()))
-    return s
+        st = _design_key(k.strip())
+        where = f"option --design {st.key}"
+        put(st, parse_text(st, v, where), where)
+    return s, origin
+
+
+def _design_key(key):
+    from .settings import all_settings, unknown_key
+
+    for st in all_settings("design"):
+        if st.key == key:
+            return st
+    raise unknown_key("option --design", key, [st.key for st in all_settings("design")],
+                      what="setting")
 
 
 def _merge(base, over):
@@ -199,103 +145,41 @@ def _merge(base, over):
 
 # --------------------------------------------------------------------- commands
 def _settings_from(a):
-    from .project import load_project
+    """Checked plan settings from a project file and/or options (options win).
 
-    flags = _flags_to_settings(a)
+    Every value and the rules between them are checked here, before any work
+    (:func:`mainspan.settings.check_settings`).
+    """
+    from .project import load_project
+    from .settings import PlanSettings
+
+    flags, origin = _flags_to_settings(a)
+    proj = None
     if a.project:
         proj = load_project(a.project)
-        base = proj.settings_for(None)
         # paths given on the command line are relative to the working directory
-        return _merge(base, flags), proj
-    if "sites" not in flags or "path" not in flags.get("sites", {}):
-        raise InputError("no sites given: pass --sites FILE or a project file "
-                         "(mainspan plan PROJECT.toml)")
-    return flags, None
+        settings = _merge(proj.settings_for(None), flags)
+        where_file = f"project {proj.path!r}"
+    else:
+        if "sites" not in flags or "path" not in flags.get("sites", {}):
+            raise InputError("no sites given: pass --sites FILE or a project file "
+                             "(mainspan plan PROJECT.toml)")
+        settings, where_file = flags, "settings"
 
-
-_INPUT_LABELS = {("sites", "path"): "sites", ("rasters", "terrain"): "terrain",
-                 ("design", "catalog"): "pipe catalog", ("design", "prices"): "price table"}
-
-
-def _inputs_of(settings, proj=None):
-    """(label, path) of every file a run with *settings* reads (every non-output path key)."""
-    from .project import _PATH_KEYS
-
-    out = []
-    if proj is not None:
-        out.append(("project file", proj.path))
-    for sec, key in sorted(_PATH_KEYS):
-        v = settings.get(sec, {}).get(key)
-        if sec != "output" and isinstance(v, str) and v:
-            out.append((_INPUT_LABELS.get((sec, key), f"[{sec}] {key}"), v))
-    lc = settings.get("rasters", {}).get("land_cost")
-    if isinstance(lc, dict):
-        out += [(f"land-cost raster {k!r}", v) for k, v in lc.items() if isinstance(v, str)]
-    elif isinstance(lc, str):
-        out.append(("land-cost raster", lc))
-    return out
-
-
-def _output_specs(a, proj, out, items):
-    """OutputSpecs for (option value, project key, kind) triples; the option wins."""
-    from .safeio import OutputSpec
-
-    specs = []
-    for opt_val, opt_name, key, kind in items:
-        if opt_val:
-            specs.append(OutputSpec(opt_name, opt_val, kind, layered=kind == "gpkg"))
-        elif out.get(key):
-            specs.append(OutputSpec(f"[output] {key}", out[key], kind,
-                                    from_project=proj is not None, layered=kind == "gpkg"))
-    return specs
-
-
-def preflight_outputs(a, proj, settings_list, items):
-    """Run :func:`mainspan.safeio.preflight` for a command; returns the checked OutputSpecs."""
-    from .safeio import preflight
-
-    out = (proj.base.get("output", {}) if proj is not None else {})
-    specs = _output_specs(a, proj, out, items)
-    inputs = []
-    for st in settings_list:
-        inputs += _inputs_of(st, proj)
-    return preflight(specs, inputs, cli_overwrite=bool(getattr(a, "overwrite", False)),
-                     project_overwrite=bool(out.get("overwrite", False)),
-                     project_root=proj.root if proj is not None else None,
-                     allow_outside=bool(getattr(a, "allow_outside_project", False)))
-
-
-def preflight_compare(a, proj, gpkg, rep):
-    """Output checks of ``mainspan compare``; returns (gpkg overwrite, report overwrite)."""
-    from .safeio import OutputSpec, preflight
-
-    out = proj.base.get("output", {})
-    specs = []
-    if gpkg:
-        specs.append(OutputSpec("--out" if a.out else "[output] gpkg (+ _scenarios)", gpkg,
-                                "gpkg", from_project=not a.out, layered=True))
-    if rep:
-        specs.append(OutputSpec("--report" if a.report else "[output] report (+ _scenarios)",
-                                rep, "report", from_project=not a.report))
-    inputs = []
-    for name in ["base", *proj.scenarios]:
-        inputs += _inputs_of(proj.settings_for(name), proj)
-    preflight(specs, inputs, cli_overwrite=bool(a.overwrite),
-              project_overwrite=bool(out.get("overwrite", False)), project_root=proj.root,
-              allow_outside=bool(getattr(a, "allow_outside_project", False)))
-    over = {o.kind: o.overwrite for o in specs}
-    return over.get("gpkg", False), over.get("report", False)
+    def where(sec, key):
+        return origin.get((sec, key), f"{where_file} [{sec}] {key}")
+    return PlanSettings.from_sections(settings, where), proj
 
 
 def _run_plan(settings, *, quiet=False):
+    """Read the sites and plan; *settings* is a PlanSettings or a settings dict."""
     from .layout import plan_layout
-    from .project import plan_kwargs
+    from .settings import PlanSettings
     from .sites import read_sites
 
-    check_design_keys(settings, where="option --design")
-    path, read_kw, plan_kw, out = plan_kwargs(settings)
-    sites = read_sites(path, **read_kw)
-    return plan_layout(sites, progress=_progress(quiet), **plan_kw), out
+    ps = settings if isinstance(settings, PlanSettings) else PlanSettings.from_sections(settings)
+    sites = read_sites(ps.sites_path, **ps.read_kwargs())
+    return plan_layout(sites, ps, progress=_progress(quiet)), ps.output
 
 
 # project-file outputs written after the GeoPackage (each checked by preflight first)
@@ -323,15 +207,18 @@ def _write_extra(lay, spec):
 
 
 def cmd_plan(a):
-    settings, proj = _settings_from(a)
+    ps, proj = _settings_from(a)
+    settings = ps.sections
     out = settings.get("output", {})
-    if not (a.out or out.get("gpkg")):
-        raise InputError("no output given: pass --out LAYOUT.gpkg (or [output] gpkg in the "
+    if not out.get("gpkg"):
+        raise InputError("no output given: pass --output LAYOUT.gpkg (or [output] gpkg in the "
                          "project file)")
+    a.overwrite = bool(a.output__overwrite)     # preflight tells the option from the file
     specs = preflight_outputs(a, proj, [settings],
-                              [(a.out, "--out", "gpkg", "gpkg"),
-                               (a.report, "--report", "report", "report")]
-                              + [(None, "", k, k) for k in _EXTRA_OUTPUTS])
+                              [(a.output__gpkg, "--output", "gpkg", "gpkg"),
+                               (a.output__report, "--report", "report", "report")]
+                              + [(getattr(a, f"output__{k}"), "--" + k.replace("_", "-"), k, k)
+                                 for k in _EXTRA_OUTPUTS])
     if any(o.kind == "quantities_csv" for o in specs) and \
             not settings.get("design", {}).get("system"):
         raise InputError("[output] quantities_csv needs sized pipes: set [design] system "
@@ -340,10 +227,10 @@ def cmd_plan(a):
     gpkg = gspec.path
     from .writers.gpkg import check_layers_free
     check_layers_free(gpkg, ("links", "nodes", "run_info"), overwrite=gspec.overwrite)
-    lay, _ = _run_plan(settings, quiet=a.quiet)
+    lay, _ = _run_plan(ps, quiet=a.quiet)
     lay.write_gpkg(gpkg, overwrite=gspec.overwrite)
     print(lay.summary())
-    _print_design(lay)
+    print_design(lay)
     print(f"written         {gpkg} (layers: links, nodes, run_info"
           + (", quantities" if "quantities" in lay.tables else "") + ")")
     for spec in specs[1:]:
@@ -353,69 +240,11 @@ def cmd_plan(a):
     return 0
 
 
-def _fmt(v):
-    import numpy as np
-    if isinstance(v, (list, tuple, np.ndarray)):
-        vals = [_fmt(x) for x in v]
-        return ", ".join(vals) if vals else "-"
-    if isinstance(v, dict):
-        items = [f"{k}={_fmt(x)}" for k, x in v.items() if x not in (0, 0.0, None, "")]
-        return ", ".join(items) if items else "none"
-    if isinstance(v, (bool, np.bool_)):
-        return "yes" if v else "no"
-    if isinstance(v, (float, np.floating)):
-        return f"{v:,.2f}"
-    return str(v)
-
-
-_SKIP = {"caution", "n_nodes", "n_links", "n_roots", "system", "notes"}
-
-
-def _print_design(lay):
-    """Design summary, failed checks and the bill of quantities."""
-    d = lay.design
-    if d is None:
-        return
-    summ = getattr(d, "summary", {}) or {}
-    print(f"design          {lay.system} mains")
-    for k, v in summ.items():
-        if k in _SKIP:
-            continue
-        print(f"  {k:<24}{_fmt(v)}")
-    for note in summ.get("notes", []) or []:
-        print(f"  note: {note}")
-    fails = getattr(d, "failures", []) or []
-    print(f"failed checks   {len(fails)}")
-    for line in fails[:10]:
-        print(f"  - {line}")
-    if len(fails) > 10:
-        print(f"  … and {len(fails) - 10} more (see the links/nodes 'checks' fields)")
-    q = lay.tables.get("quantities")
-    if q:
-        print(format_quantities(q))
-
-
-def format_quantities(q) -> str:
-    """The bill of quantities as a fixed-width text table."""
-    import numpy as np
-    cols = [c for c in ("category", "item", "material", "nominal_mm", "unit", "quantity", "unit_cost",
-                        "length_m", "count", "pipe_cost", "trench_cost", "land_cost", "total_cost")
-            if c in q and not (c in ("material", "nominal_mm", "length_m") and "item" in q)]
-    rows = [["" if isinstance(v, (float, np.floating)) and np.isnan(v) else
-             _fmt(v) if not isinstance(v, (int, np.integer)) else str(v) for v in
-             (q[c][i] for c in cols)] for i in range(len(q[cols[0]]))]
-    width = [max(len(c), *(len(r[j]) for r in rows)) for j, c in enumerate(cols)]
-    lines = ["bill of quantities:",
-             "  " + "  ".join(c.rjust(w) for c, w in zip(cols, width))]
-    lines += ["  " + "  ".join(v.rjust(w) for v, w in zip(r, width)) for r in rows]
-    return "\n".join(lines)
-
-
 def cmd_check(a):
     from .check import check_inputs
 
-    settings, proj = _settings_from(a)
-    check_design_keys(settings, where="option --design")
+    ps, proj = _settings_from(a)     # every value and combination checked here
+    settings = ps.sections
     if proj is not None:   # the project's outputs: same checks as plan (existing files aside)
         a.overwrite = True
         preflight_outputs(a, proj, [settings], [(None, "--out", "gpkg", "gpkg"),
@@ -531,24 +360,23 @@ def build_parser():
                    help="print mainspan, Python, numpy, GDAL, PROJ and GEOS versions")
     sub = p.add_subparsers(dest="command", parser_class=_Parser)
 
-    pl = sub.add_parser("plan", help="plan a layout from sites (flags or a project file)")
+    from .settings import design_help
+    epilog = (design_help() + "\n\nEvery option is also a project-file key: [section] key, the "
+              "option name with underscores.")
+    pl = sub.add_parser("plan", help="plan a layout from sites (flags or a project file)",
+                        epilog=epilog, formatter_class=argparse.RawDescriptionHelpFormatter)
     pl.add_argument("project", nargs="?", help="project TOML file (optional)")
-    _site_options(pl)
-    _raster_options(pl)
-    _tree_options(pl)
-    pl.add_argument("--out", metavar="LAYOUT.gpkg", help="output GeoPackage")
-    pl.add_argument("--report", metavar="HTML", help="also write the review report")
-    pl.add_argument("--overwrite", action="store_true", help="replace existing outputs")
+    _run_options(pl)
     pl.add_argument("--allow-outside-project", action="store_true",
                     help="let the project file's [output] paths lie outside its folder")
-    pl.add_argument("--quiet", action="store_true", help="no progress on stderr")
+    _plan_options(pl)
     pl.set_defaults(func=cmd_plan)
 
-    ck = sub.add_parser("check", help="validate inputs without computing a layout")
+    ck = sub.add_parser("check", help="validate inputs without computing a layout",
+                        epilog=design_help(), formatter_class=argparse.RawDescriptionHelpFormatter)
     ck.add_argument("project", nargs="?", help="project TOML file (optional)")
-    _site_options(ck)
-    _raster_options(ck)
-    _tree_options(ck)
+    _run_options(ck, quiet=False)
+    _plan_options(ck, output=False)
     ck.add_argument("--allow-outside-project", action="store_true",
                     help="let the project file's [output] paths lie outside its folder")
     ck.set_defaults(func=cmd_check)

@@ -92,15 +92,8 @@ __all__ = [
 ]
 
 # command-line spelling of each weight, for messages (the CLI uses the same names)
-OPTION_NAMES = {
-    "length": "--w-length",
-    "land": "--w-land",
-    "climb": "--w-climb",
-    "descent": "--w-descent",
-    "steep_slope_pct": "--steep-slope-pct",
-    "steep_per_m": "--w-steep",
-    "fixed": "--w-fixed",
-}
+OPTION_NAMES = {k: "--" + k.replace("_", "-") for k in
+                ("length", "land", "climb", "descent", "steep_slope_pct", "steep_per_m", "fixed")}
 
 BASE_COMPONENTS = (
     "length_m", "surface_length_m", "land_cost", "climb_m", "descent_m", "max_slope_pct",
@@ -149,7 +142,7 @@ class CostWeights:
     >>> CostWeights(climb=-1)
     Traceback (most recent call last):
     ...
-    mainspan.errors.InputError: --w-climb (CostWeights.climb) must be a finite number >= 0; got -1
+    mainspan.errors.InputError: --climb (CostWeights.climb) must be a finite number >= 0; got -1
     """
 
     length: float = 1.0

@@ -61,7 +61,8 @@ def demo_files(dest):
 
 def run_demo(outdir, *, overwrite=False, quiet=False, write_extras=True):
     """Write the demo inputs to ``OUTDIR/inputs`` and plan both scenarios into OUTDIR."""
-    from .cli import CAUTION, _progress
+    from .messages import CAUTION, print_design
+    from .messages import progress as _progress
     from .layout import plan_layout
     from .project import load_project, plan_kwargs
     from .sites import read_sites
@@ -103,8 +104,7 @@ def run_demo(outdir, *, overwrite=False, quiet=False, write_extras=True):
     print(_whole_cost_vs_prim(ground, prim))
     print(_ground_vs_length(prim, plain))
     # --- end whole11 ---
-    from .cli import _print_design
-    _print_design(ground)
+    print_design(ground)
 
     print()
     print("Harrow Brook storm drainage catchment (gravity mains, Rational method, invented demo)")
@@ -113,7 +113,7 @@ def run_demo(outdir, *, overwrite=False, quiet=False, write_extras=True):
     drain.write_gpkg(h_gpkg, overwrite=overwrite)
     print(drain.summary())
     print(_depth_aware_gain(drain))
-    _print_design(drain)
+    print_design(drain)
 
     written = [k_gpkg, h_gpkg]
     if write_extras:
@@ -139,7 +139,7 @@ def run_demo(outdir, *, overwrite=False, quiet=False, write_extras=True):
     print("written:")
     for p in written:
         print(f"  {p}")
-    print(f"inputs (rerun with 'mainspan plan {files['kestrel.toml']} --out NEW.gpkg'):")
+    print(f"inputs (rerun with 'mainspan plan {files['kestrel.toml']} --output NEW.gpkg'):")
     print(f"  {inputs}")
     print(CAUTION)
     sys.stdout.flush()

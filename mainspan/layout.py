@@ -20,6 +20,8 @@ import pyproj
 
 from ._version import __version__
 from .errors import CertificateError, DisconnectedError, InputError
+from .settings import design_settings as _design_settings
+from .settings import run_info_params
 
 __all__ = ["Layout", "Profiles", "plan_layout", "read_layout", "file_sha256", "site_elevations",
            "grow_tree", "assemble_layout", "LAYOUTS"]
@@ -27,7 +29,7 @@ __all__ = ["Layout", "Profiles", "plan_layout", "read_layout", "file_sha256", "s
 # --- whole11: the layout kinds, one constant for plan_layout, the CLI and scenarios ---
 #: ``tree``: Prim's tree of link costs; ``gravity``: minimum arborescence towards the
 #: outlet; ``whole-cost``: the tree of least whole-life cost (:mod:`mainspan.wholecost`).
-LAYOUTS = ("tree", "gravity", "whole-cost")
+from .settings import LAYOUTS  # noqa: E402 - declared with the settings schema (tree.layout)
 # --- end whole11 ---
 
 
@@ -336,7 +338,7 @@ def _path_sums(parent, order, link_of_node, link_cost):
     return hops.astype(np.int64), cost
 
 
-def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, class_costs=None,
+def plan_layout(sites, settings=None, *, terrain=None, land_cost=None, cost_expression=None, class_costs=None,
                 raster_crs=None, on_nodata="barrier", sample_spacing_m=None, weights=None,
                 candidates="delaunay", k=8, max_link_m=None, max_complete_nodes=5000,
                 roots=None, allow_forest=False, use_site_z=False, system=None, design=None,
@@ -347,6 +349,11 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
     ----------
     sites : Sites or path
         From :func:`mainspan.read_sites`, or a path read with its defaults.
+    settings : PlanSettings, optional
+        Checked settings (:class:`mainspan.settings.PlanSettings`, as the
+        command line and project files make them); when given, the keywords
+        below that feed settings must be left at their defaults.  Without
+        it, the keywords are checked with the same schema before any work.
     terrain : path, optional
         DEM raster; gives elevations, surface lengths, climb and slope.
     land_cost : path or dict of name -> path, optional
@@ -409,23 +416,40 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
     """
     from .candidates import build_candidates
     from .costs import CostWeights, node_elevations, price_links
+    from .settings import PlanSettings
     from .sites import Sites, read_sites
 
     t0 = time.perf_counter()
+    given = dict(terrain=terrain, land_cost=land_cost, cost_expression=cost_expression,
+                 class_costs=class_costs, raster_crs=raster_crs, on_nodata=on_nodata,
+                 sample_spacing_m=sample_spacing_m, weights=weights, candidates=candidates, k=k,
+                 max_link_m=max_link_m, max_complete_nodes=max_complete_nodes, roots=roots,
+                 allow_forest=allow_forest, use_site_z=use_site_z, system=system, design=design,
+                 layout=layout)
+    if settings is None:        # every value and combination checked before any work
+        settings = PlanSettings.from_kwargs(**given)
+    elif not isinstance(settings, PlanSettings):
+        raise InputError(f"plan_layout(settings=...): must be a PlanSettings, got "
+                         f"{type(settings).__name__}; build one with "
+                         "PlanSettings.from_sections(...) or pass keywords")
+    else:
+        defaults = _PLAN_DEFAULTS
+        clash = [n for n, v in given.items() if not _same(v, defaults[n])]
+        if clash:
+            raise InputError(f"plan_layout: give settings= or the keywords, not both "
+                             f"({', '.join(clash)}); fold them into the PlanSettings")
+    kw = {**{n: defaults_v for n, defaults_v in _PLAN_DEFAULTS.items()},
+          **settings.plan_kwargs()}
+    terrain, land_cost, cost_expression = kw["terrain"], kw["land_cost"], kw["cost_expression"]
+    class_costs, raster_crs, on_nodata = kw["class_costs"], kw["raster_crs"], kw["on_nodata"]
+    sample_spacing_m, weights, candidates = kw["sample_spacing_m"], kw["weights"], kw["candidates"]
+    k, max_link_m, max_complete_nodes = kw["k"], kw["max_link_m"], kw["max_complete_nodes"]
+    roots, allow_forest, use_site_z = kw["roots"], kw["allow_forest"], kw["use_site_z"]
+    system, design, layout = kw["system"], kw["design"], kw["layout"]
     say = progress or (lambda *a: None)
     if not isinstance(sites, Sites):
         sites = read_sites(sites)
     n = sites.n
-    if layout not in LAYOUTS:
-        raise InputError(f"option --layout: must be one of {', '.join(LAYOUTS)}, got {layout!r}")
-    if system not in (None, "pressure", "gravity"):
-        raise InputError(f"option --system: must be 'pressure' or 'gravity', got {system!r}")
-    if layout == "gravity" and system != "gravity":
-        raise InputError("option --layout gravity needs --system gravity (it grows the tree "
-                         "towards a gravity outlet); add --system gravity")
-    if layout == "whole-cost" and system != "pressure":    # whole11
-        raise InputError("option --layout whole-cost needs --system pressure (it sizes the "
-                         "pressure mains of every tree it prices); add --system pressure")
     if weights is None:
         weights = CostWeights()
     elif isinstance(weights, dict):
@@ -471,14 +495,7 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
     say("tree", 1, 1)
     land_paths = land_cost if isinstance(land_cost, dict) else (
         {"land_cost": land_cost} if land_cost is not None else {})
-    params = {
-        "candidates": str(candidates), "k": str(k),
-        "max_link_m": "" if max_link_m is None else f"{max_link_m:g}",
-        "terrain": "" if terrain is None else os.fspath(getattr(terrain, "path", terrain)),
-        "land_cost": "; ".join(f"{k_}={os.fspath(v)}" for k_, v in land_paths.items()),
-        "cost_expression": cost_expression or "", "on_nodata": on_nodata,
-        "weights": _fmt_dataclass(weights), "layout": layout,
-    }
+    params = run_info_params({**kw, "weights": weights})
     inputs = [("sites", sites.path), ("terrain", getattr(terrain, "path", terrain)),
               *land_paths.items()]
     lay = assemble_layout(sites, cands, costs, elev, tree, cert, directed,
@@ -489,6 +506,20 @@ def plan_layout(sites, *, terrain=None, land_cost=None, cost_expression=None, cl
         lay.run_info.update({str(k_): str(v) for k_, v in extra_run_info.items()})
     lay.elapsed_s = time.perf_counter() - t0
     return lay
+
+
+_PLAN_DEFAULTS = dict(terrain=None, land_cost=None, cost_expression=None, class_costs=None,
+                      raster_crs=None, on_nodata="barrier", sample_spacing_m=None, weights=None,
+                      candidates="delaunay", k=8, max_link_m=None, max_complete_nodes=5000,
+                      roots=None, allow_forest=False, use_site_z=False, system=None, design=None,
+                      layout="tree")
+
+
+def _same(a, b):
+    try:
+        return a is b or bool(a == b)
+    except (TypeError, ValueError):       # arrays and the like: treat as given
+        return False
 
 
 def site_elevations(sites, dem_elev=None, *, use_site_z=False):
@@ -812,38 +843,6 @@ def _basis_fields(nodes):
     """The sites' design-basis columns (catchment area, runoff coefficient, population)."""
     return {k: np.asarray(nodes[k], float) for k in ("area_ha", "runoff_c", "population", "min_pressure_m")
             if k in nodes}
-
-
-def _design_settings(design, system):
-    """DesignSettings from None, a dict (keys as in the project file) or an instance.
-
-    ``catalog`` (a CSV path) is read once and becomes the catalog of *system*.
-    """
-    from .hydraulics import DesignSettings
-    from .hydraulics.catalog import read_catalog
-
-    if design is None:
-        return DesignSettings()
-    if isinstance(design, DesignSettings):
-        return design
-    d = dict(design)
-    cat = d.pop("catalog", None)
-    for key in ("pressure_catalog", "gravity_catalog"):
-        if isinstance(d.get(key), (str, os.PathLike)):
-            d[key] = read_catalog(d[key])
-    if cat is not None:
-        d["gravity_catalog" if system == "gravity" else "pressure_catalog"] = read_catalog(cat)
-    if isinstance(d.get("prices"), (str, os.PathLike)):
-        from .prices import read_prices
-        d["prices"] = read_prices(d["prices"])
-    elif isinstance(d.get("prices"), dict):
-        from .prices import prices_from_mapping
-        d["prices"] = prices_from_mapping(d["prices"])
-    try:
-        return DesignSettings(**d)
-    except TypeError as exc:
-        raise InputError(f"design settings: {exc}; see mainspan.hydraulics.DesignSettings "
-                         "for the valid keys") from None
 
 
 def _gravity_tree(sites, edges, keep, w_all, costs, elev, root_idx, design,

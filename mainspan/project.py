@@ -27,72 +27,36 @@ Layout of a project file (all sections optional except ``[sites]``)::
 from __future__ import annotations
 
 import copy
-import dataclasses
 import difflib
 import os
 import tomllib
 from dataclasses import dataclass, field
 
 from .errors import DataFileError, InputError
+from .settings import SECTIONS, PlanSettings, check_value, setting, unknown_key
 
 __all__ = ["Project", "load_project", "plan_kwargs", "check_design_keys", "SCHEMA"]
 
-_STR, _NUM, _INT, _BOOL, _LIST, _TABLE = "text", "number", "integer", "true/false", "list", "table"
-
-SCHEMA = {
-    "sites": {"path": _STR, "layer": _STR, "id_field": _STR, "role_field": _STR,
-              "demand_field": _STR, "elevation_field": _STR, "x_field": _STR, "y_field": _STR,
-              "sites_crs": _STR, "merge_within_m": _NUM,
-              "area_field": _STR, "runoff_field": _STR, "population_field": _STR,  # design basis
-              "min_pressure_field": _STR},
-    "crs": {"working": _STR},
-    "rasters": {"terrain": _STR, "raster_crs": _STR, "on_nodata": _STR,
-                "sample_spacing_m": _NUM, "cost_expression": _STR, "class_costs": _TABLE,
-                "land_cost": _TABLE},
-    "costs": None,      # filled from CostWeights
-    "candidates": {"method": _STR, "k": _INT, "max_link_m": _NUM, "max_complete_nodes": _INT},
-    "tree": {"roots": _LIST, "allow_forest": _BOOL, "use_site_z": _BOOL, "layout": _STR},
-    "design": None,     # filled from DesignSettings
-    "output": {"gpkg": _STR, "overwrite": _BOOL, "report": _STR, "dxf": _STR, "landxml": _STR,
-               "links_csv": _STR, "quantities_csv": _STR},
-    "prices": {"placeholder": _BOOL, "excavation": _TABLE, "shoring": _TABLE, "bedding": _NUM,
-               "reinstatement": _TABLE, "fitting": _TABLE, "manhole": _TABLE, "crossing": _NUM,
-               "pump_station": _TABLE, "energy": _TABLE, "operation": _TABLE},
-    "scenarios": _TABLE,
-    "stability": {"runs": _INT, "perturb_pct": _NUM, "seed": _INT},
-}
-_PATH_KEYS = {("sites", "path"), ("rasters", "terrain"), ("output", "gpkg"), ("output", "report"),
-              ("output", "dxf"), ("output", "landxml"), ("output", "links_csv"),
-              ("output", "quantities_csv"), ("design", "catalog"),
-              ("design", "prices"), ("design", "surface_raster")}
-
-
-def _dataclass_schema(cls):
-    out = {}
-    for f in dataclasses.fields(cls):
-        t = str(f.type)
-        if "bool" in t:
-            out[f.name] = _BOOL
-        elif "int" in t and "float" not in t:
-            out[f.name] = _INT
-        elif "float" in t:
-            out[f.name] = _NUM
-        else:
-            out[f.name] = None  # any
-    return out
+# Every plan key is declared once in mainspan.settings; the compare command's
+# [stability] section and [scenarios.NAME] overrides are this module's own.
+_STABILITY = {"runs": "integer", "perturb_pct": "number", "seed": "integer"}
 
 
 def _schema():
-    from .costs import CostWeights
+    """``section -> {key: Setting or kind}`` of a project file."""
+    from .settings import SECTIONS, Setting, all_settings
 
-    s = copy.deepcopy(SCHEMA)
-    s["costs"] = _dataclass_schema(CostWeights)
-    try:
-        from .hydraulics import DesignSettings
-        s["design"] = {"system": _STR, "catalog": _STR, **_dataclass_schema(DesignSettings)}
-    except ImportError:  # design stage not available: only 'system' is known
-        s["design"] = {"system": _STR}
+    s = {sec: {x.key: x for x in all_settings(sec)} for sec in SECTIONS}
+    s["scenarios"] = "table"
+    s["stability"] = {k: Setting("stability", k, kind, lo=0.0) for k, kind in _STABILITY.items()}
     return s
+
+
+def __getattr__(name):
+    if name == "SCHEMA":        # kept for callers of the old table: section -> key -> kind
+        return {sec: (keys if isinstance(keys, str) else {k: v.kind for k, v in keys.items()})
+                for sec, keys in _schema().items()}
+    raise AttributeError(name)
 
 
 @dataclass
@@ -126,20 +90,6 @@ class Project:
         return merged
 
 
-def _check_type(where, key, val, kind):
-    ok = {
-        _STR: isinstance(val, str),
-        _NUM: isinstance(val, (int, float)) and not isinstance(val, bool),
-        _INT: isinstance(val, int) and not isinstance(val, bool),
-        _BOOL: isinstance(val, bool),
-        _LIST: isinstance(val, list),
-        _TABLE: isinstance(val, dict),
-        None: True,
-    }[kind]
-    if not ok:
-        raise InputError(f"{where}: key {key!r} must be {kind}, got {val!r}")
-
-
 def _validate_sections(doc, where, schema, *, allow_scenarios=True):
     out = {}
     for sec, vals in doc.items():
@@ -157,14 +107,14 @@ def _validate_sections(doc, where, schema, *, allow_scenarios=True):
         if not isinstance(vals, dict):
             raise InputError(f"{where}: [{sec}] must be a table of keys")
         keys = schema[sec]
+        out[sec] = {}
         for k, v in vals.items():
             if k not in keys:
                 close = difflib.get_close_matches(k, list(keys), n=1)
                 raise InputError(f"{where}: unknown key {k!r} in [{sec}]"
                                  + (f"; did you mean {close[0]!r}?" if close else
                                     f"; valid keys: {', '.join(keys)}"))
-            _check_type(f"{where} [{sec}]", k, v, keys[k])
-        out[sec] = dict(vals)
+            out[sec][k] = check_value(keys[k], v, f"{where} [{sec}] {k}")
     return out
 
 
@@ -180,9 +130,12 @@ def _check_output_extensions(d, where):
 
 
 def _resolve_paths(d, root):
-    for sec, key in _PATH_KEYS:
-        if sec in d and isinstance(d[sec].get(key), str):
-            d[sec][key] = os.path.normpath(os.path.join(root, d[sec][key]))
+    for sec, vals in d.items():
+        if not isinstance(vals, dict) or sec not in SECTIONS:
+            continue
+        for key, v in vals.items():
+            if isinstance(v, str) and setting(sec, key).kind == "path":
+                vals[key] = os.path.normpath(os.path.join(root, v))
     rl = d.get("rasters", {}).get("land_cost")
     if isinstance(rl, dict):
         for name, p in rl.items():
@@ -262,49 +215,15 @@ def check_design_keys(settings: dict, *, where="[design]"):
     known = _schema()["design"]
     for k in settings.get("design", {}):
         if k not in known:
-            close = difflib.get_close_matches(k, list(known), n=1)
-            raise InputError(f"{where}: unknown setting {k!r}"
-                             + (f"; did you mean {close[0]!r}?" if close else
-                                f"; valid settings: {', '.join(known)}"))
+            raise unknown_key(where, k, list(known), what="setting")
 
 
 def plan_kwargs(settings: dict):
-    """Split merged settings into (read_sites kwargs, plan_layout kwargs, output dict)."""
-    s = settings.get("sites", {})
-    read = {k: v for k, v in s.items() if k != "path"}
-    crs = settings.get("crs", {}).get("working")
-    if crs:
-        read["crs"] = crs
-    r = dict(settings.get("rasters", {}))
-    plan = {}
-    for k in ("terrain", "raster_crs", "on_nodata", "sample_spacing_m", "cost_expression"):
-        if k in r:
-            plan[k] = r[k]
-    if "land_cost" in r:
-        plan["land_cost"] = r["land_cost"]
-    if "class_costs" in r:
-        try:
-            plan["class_costs"] = {int(k): float(v) for k, v in r["class_costs"].items()}
-        except (TypeError, ValueError):
-            raise InputError("[rasters.class_costs] keys must be integer class codes and "
-                             "values costs per metre") from None
-    if settings.get("costs"):
-        plan["weights"] = dict(settings["costs"])
-    c = settings.get("candidates", {})
-    if "method" in c:
-        plan["candidates"] = c["method"]
-    for k in ("k", "max_link_m", "max_complete_nodes"):
-        if k in c:
-            plan[k] = c[k]
-    t = settings.get("tree", {})
-    for k in ("roots", "allow_forest", "use_site_z", "layout"):
-        if k in t:
-            plan[k] = t[k]
-    d = dict(settings.get("design", {}))
-    if settings.get("prices") and "prices" not in d:
-        d["prices"] = dict(settings["prices"])
-    if "system" in d:
-        plan["system"] = d.pop("system")
-    if d:
-        plan["design"] = d
-    return s.get("path"), read, plan, dict(settings.get("output", {}))
+    """Split merged settings into (sites path, read_sites kwargs, plan_layout kwargs, output).
+
+    Only a split: :func:`mainspan.plan_layout` checks the keywords (every
+    value and the rules between them) before any work, and so does the
+    command line on the merged settings.
+    """
+    ps = settings if isinstance(settings, PlanSettings) else PlanSettings(settings)
+    return ps.sites_path, ps.read_kwargs(), ps.plan_kwargs(), ps.output

@@ -77,7 +77,6 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .errors import CertificateError, DataFileError, InputError
-from .project import check_design_keys
 
 __all__ = ["ScenarioResult", "ScenarioSet", "run_scenarios", "write_scenarios", "difference",
            "combine_costs", "format_table", "report_sections", "layer_names", "compare_cli",
@@ -421,7 +420,8 @@ def _tree_links(tree):
 
 def _assemble(bench, sites, cands, costs, elev, plan, *, name, description):
     """A Layout from shared stages, assembled exactly as :func:`plan_layout` does."""
-    from .layout import _fmt_dataclass, assemble_layout
+    from .layout import assemble_layout
+    from .settings import run_info_params
 
     system, layout_kind = plan.get("system"), plan.get("layout", "tree")
     from .layout import LAYOUTS
@@ -441,16 +441,9 @@ def _assemble(bench, sites, cands, costs, elev, plan, *, name, description):
                                  node_order=cands.node_order, terrain_surface=surf)
     land = plan.get("land_cost")
     land = land if isinstance(land, dict) else ({} if land is None else {"land_cost": land})
-    params = {
-        "scenario": name, "scenario_description": description,
-        "candidates": str(cands.method), "k": str(plan.get("k", 8)),
-        "max_link_m": "" if plan.get("max_link_m") is None else f"{plan['max_link_m']:g}",
-        "terrain": "" if terrain is None else os.fspath(terrain),
-        "land_cost": "; ".join(f"{k}={os.fspath(v)}" for k, v in land.items()),
-        "cost_expression": plan.get("cost_expression") or "",
-        "on_nodata": plan.get("on_nodata", "barrier"),
-        "weights": _fmt_dataclass(_weights(plan)), "layout": layout_kind,
-    }
+    params = {"scenario": name, "scenario_description": description,
+              **run_info_params({**plan, "weights": _weights(plan)},
+                                candidates_label=cands.method)}
     lay = assemble_layout(sites, cands, costs, elev, tree, cert, directed,
                           terrain_surface=surf, sample_spacing_m=plan.get("sample_spacing_m"),
                           system=system, design=plan.get("design"), params=params,
@@ -519,17 +512,22 @@ def run_scenarios(project, *, names=None, progress=None, stability_runs=0, pertu
     if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0:
         raise InputError(f"seed (--seed) must be an integer >= 0; got {seed!r}")
     wanted = list(project.scenarios) if names is None else [n for n in names if n != "base"]
-    for n in wanted:
-        project.settings_for(n)        # an unknown name is an InputError listing the valid ones
     order = ["base", *dict.fromkeys(wanted)]
+    checked = {}
+    for name in order:     # every scenario's settings checked before any work
+        try:
+            checked[name] = _checked_settings(project, name)
+        except (InputError, DataFileError) as exc:
+            exc.args = (f"scenario {name!r}: {exc}",) + exc.args[1:]
+            raise
     say = progress or (lambda *a: None)
     bench = _Workbench(say)
     results = {}
     try:
         for name in order:
             try:
-                results[name] = _run_one(project, name, bench, say, stability_runs,
-                                         perturb_pct, seed)
+                results[name] = _run_one(project, name, checked[name], bench, say,
+                                         stability_runs, perturb_pct, seed)
             except (InputError, DataFileError) as exc:   # keep the class, name the scenario
                 exc.args = (f"scenario {name!r}: {exc}",) + exc.args[1:]
                 raise
@@ -543,13 +541,19 @@ def run_scenarios(project, *, names=None, progress=None, stability_runs=0, pertu
                        int(stability_runs), float(perturb_pct), int(seed))
 
 
-def _run_one(project, name, bench, say, stability_runs, perturb_pct, seed):
-    from .project import plan_kwargs
+def _checked_settings(project, name):
+    """The merged settings of scenario *name*, checked with the settings schema."""
+    from .settings import PlanSettings
 
-    settings = project.settings_for(name)
+    where = f"project {project.path!r}" + ("" if name == "base" else f" [scenarios.{name}]")
+    return PlanSettings.from_sections(project.settings_for(name),
+                                      lambda sec, key: f"{where} [{sec}] {key}")
+
+
+def _run_one(project, name, ps, bench, say, stability_runs, perturb_pct, seed):
+    settings = ps.sections
     desc = "" if name == "base" else project.scenarios[name].get("description", "")
-    check_design_keys(settings)
-    path, read_kw, plan, _ = plan_kwargs(settings)
+    path, read_kw, plan = ps.sites_path, ps.read_kwargs(), ps.plan_kwargs()
     weights = _weights(plan)
     sk, sites = bench.get_sites(path, read_kw)
     ck, cands = bench.get_candidates(sk, sites, plan)
@@ -1060,12 +1064,12 @@ def compare_cli(args):
     gpkg = args.out or (_suffixed(out["gpkg"], "_scenarios") if out.get("gpkg") else None)
     rep = args.report or (_suffixed(out["report"], "_scenarios") if out.get("report") else None)
     # output safety (mainspan.safeio): same-file, project-folder and overwrite rules first
-    from .cli import preflight_compare
+    from .preflight import preflight_compare
     overwrite, rep_overwrite = preflight_compare(args, proj, gpkg, rep)
     if gpkg:
         check_layers_free(gpkg, layer_names(["base", *proj.scenarios]), overwrite=overwrite)
-    from .cli import _progress
-    sset = run_scenarios(proj, progress=_progress(args.quiet), stability_runs=runs,
+    from .messages import progress
+    sset = run_scenarios(proj, progress=progress(args.quiet), stability_runs=runs,
                          perturb_pct=pct, seed=seed)
     print(sset.table())
     if gpkg:
@@ -1079,7 +1083,7 @@ def compare_cli(args):
                      extra_sections=report_sections(sset))
         print(f"report          {rep}")
     if any(sset[n].system for n in sset.names):
-        from .cli import CAUTION
+        from .messages import CAUTION
         print(CAUTION)
     sys.stdout.flush()
     return 0

@@ -381,9 +381,9 @@ def test_extra_terms_registry_and_callable():
 
 
 def test_weights_and_inputs_are_validated():
-    with pytest.raises(InputError, match="--w-climb"):
+    with pytest.raises(InputError, match="--climb"):
         CostWeights(climb=float("nan"))
-    with pytest.raises(InputError, match="--w-length"):
+    with pytest.raises(InputError, match="--length"):
         CostWeights(length=-2)
     with pytest.raises(InputError, match="--steep-slope-pct"):
         CostWeights(steep_per_m=3.0)

@@ -49,7 +49,7 @@ gpkg = "out/layout.gpkg"
 @pytest.mark.parametrize("text,needle", [
     ('[sites]\npath = "s.gpkg"\n[candidate]\nk = 3\n', "did you mean [candidates]"),
     ('[sites]\npath = "s.gpkg"\n[costs]\nclimbing = 3\n', "did you mean 'climb'"),
-    ('[sites]\npath = "s.gpkg"\n[candidates]\nk = "many"\n', "must be integer"),
+    ('[sites]\npath = "s.gpkg"\n[candidates]\nk = "many"\n', "must be an integer >= 1"),
     ('[sites]\nlayer = "x"\n', "[sites] path is required"),
     ('[sites\npath=1', "not valid TOML"),
     ('[sites]\npath = "s.gpkg"\n[scenarios.a]\ncosts = { lenght = 1.0 }\n', "did you mean 'length'"),
