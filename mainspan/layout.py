@@ -840,9 +840,10 @@ def _design(lay, system, design, tree):
 
 
 def _basis_fields(nodes):
-    """The sites' design-basis columns (catchment area, runoff coefficient, population)."""
-    return {k: np.asarray(nodes[k], float) for k in ("area_ha", "runoff_c", "population", "min_pressure_m")
-            if k in nodes}
+    """The sites' design-basis columns (see :func:`mainspan.hydraulics.basis.basis_fields`)."""
+    from .hydraulics.basis import basis_fields
+
+    return basis_fields(nodes)
 
 
 def _gravity_tree(sites, edges, keep, w_all, costs, elev, root_idx, design,

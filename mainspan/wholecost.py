@@ -1092,7 +1092,8 @@ def grow_whole_cost(sites, edges, costs, elev, root_idx, prim_sub, keep, *, desi
     Tree over the passable subset, with a ``search`` dict (see
     :func:`whole_cost_tree`, plus ``n_moves`` and ``prim_tree``).
     """
-    from .layout import _basis_fields, _design_settings
+    from .hydraulics.basis import basis_fields as _basis_fields
+    from .settings import design_settings as _design_settings
 
     if system != "pressure":
         raise InputError("option --layout whole-cost sizes pressure mains to price each tree; "

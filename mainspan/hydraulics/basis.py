@@ -452,3 +452,11 @@ def check_basis_settings(s):
             raise InputError(f"design option '{name}' must be {'>= 0' if name == 'storm_min_velocity_mps' else '> 0'}, "
                              f"got {v!r}; {fix}")
     return None if s.idf is None else parse_idf(s.idf)
+
+
+# --- schema9: the node columns the design stage takes from the sites (used by layout, wholecost)
+def basis_fields(nodes):
+    """The sites' design-basis columns present in *nodes* (catchment area, runoff
+    coefficient, population, minimum pressure head), as float arrays."""
+    return {k: np.asarray(nodes[k], float) for k in ("area_ha", "runoff_c", "population",
+                                                     "min_pressure_m") if k in nodes}
