@@ -619,12 +619,13 @@ def _cross_rules(d, where):
     if layout == "gravity" and system != "gravity":
         raise bad_value(where("tree", "layout"), "a gravity layout", "planned with system "
                         "gravity", f"layout gravity with system {system or 'none'}",
-                        "add --system gravity (it grows the tree towards a gravity outlet)")
+                        "--layout gravity needs --system gravity (it grows the tree towards a "
+                        "gravity outlet); add --system gravity")
     if layout == "whole-cost" and system != "pressure":
         raise bad_value(where("tree", "layout"), "a whole-cost layout", "planned with system "
                         "pressure", f"layout whole-cost with system {system or 'none'}",
-                        "add --system pressure (it sizes the pressure mains of every tree "
-                        "it prices)")
+                        "--layout whole-cost needs --system pressure (it sizes the pressure "
+                        "mains of every tree it prices); add --system pressure")
     if system == "gravity" and terrain is None and not _get(d, "tree", "use_site_z", False):
         raise bad_value(where("design", "system"), "a gravity system", "given ground "
                         "elevations", "no terrain", "give --terrain DEM (or the sites' own Z "

@@ -341,11 +341,14 @@ def test_whole_cost_needs_pressure_system():
 def test_cli_layout_choices_come_from_layout():
     from mainspan.cli import build_parser
     from mainspan.layout import LAYOUTS
+    from mainspan.settings import setting
 
     p = build_parser()
+    # the option comes from the settings schema ([tree] layout), whose choices are LAYOUTS
     act = next(a for sp in p._subparsers._group_actions for a in sp.choices["plan"]._actions
-               if a.dest == "layout")
-    assert tuple(act.choices) == LAYOUTS and "whole-cost" in LAYOUTS
+               if a.dest == "tree__layout")
+    assert setting("tree", "layout").choices == LAYOUTS and "whole-cost" in LAYOUTS
+    assert act.metavar == "{" + ",".join(LAYOUTS) + "}"
 
 
 def test_project_file_and_cli(tmp_path, capsys, points_file):
