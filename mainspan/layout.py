@@ -867,7 +867,7 @@ def _gravity_tree(sites, edges, keep, w_all, costs, elev, root_idx, design,
 
     if len(root_idx) != 1:
         raise InputError(f"--layout gravity needs exactly one outlet (root), got "
-                         f"{len(root_idx)}; give one site the role 'outlet' or use --root")
+                         f"{len(root_idx)}; give one site the role 'outlet' or use --roots")
     if not np.isfinite(elev).all():
         raise InputError("--layout gravity needs ground elevations at every site: give "
                          "--terrain (or site Z with --use-site-z)")

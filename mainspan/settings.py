@@ -181,7 +181,8 @@ STATIC_SETTINGS = (
     S("sites", "elevation_field", "text", None, "field holding site elevations in metres"),
     S("sites", "x_field", "text", None, "CSV column of x / longitude (default x)"),
     S("sites", "y_field", "text", None, "CSV column of y / latitude (default y)"),
-    S("sites", "sites_crs", "text", None, "CRS of site coordinates when the file has none",
+    S("sites", "sites_crs", "text", None, "CRS of the site coordinates: needed when the file "
+      "has none (CSV); when given, it overrides the file's own CRS (to correct a wrong one)",
       metavar="CRS"),
     S("sites", "merge_within_m", "number", None, "merge sites closer than this instead of "
       "failing", unit="m", lo=0.0, aliases=("--merge-within",), run_info="merged_sites"),

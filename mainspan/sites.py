@@ -96,7 +96,7 @@ class Sites:
     def n(self):
         return len(self.node_id)
 
-    def index_of(self, ids, *, option="--root"):
+    def index_of(self, ids, *, option="--roots"):
         """Node indices of the given ids; an unknown id is an error naming it."""
         lookup = {k: i for i, k in enumerate(self.node_id)}
         out = []
@@ -474,7 +474,7 @@ def _check_geometry(sites: Sites, where: str, merge_within_m):
     if merge_within_m is not None:
         m = float(merge_within_m)
         if not np.isfinite(m) or m < 0:
-            raise InputError(f"option --merge-within: must be a distance >= 0 in metres, got "
+            raise InputError(f"option --merge-within-m: must be a distance >= 0 in metres, got "
                              f"{merge_within_m!r}")
         tol = max(tol, m)
     pairs = cKDTree(sites.xy).query_pairs(tol, output_type="ndarray") if n > 1 else np.empty((0, 2), int)
@@ -485,7 +485,7 @@ def _check_geometry(sites: Sites, where: str, merge_within_m):
             raise InputError(
                 f"sites {where}: {len(pairs)} pair(s) of coincident sites (closer than "
                 f"{COINCIDENT_M * 1000:g} mm): {shown}{' …' if len(pairs) > 5 else ''}; remove "
-                "them or pass --merge-within METRES to merge them")
+                "them or pass --merge-within-m METRES to merge them")
         sites = _merge(sites, pairs)
     if sites.n < 2:
         raise InputError(f"sites {where}: only {sites.n} site(s); a network needs at least 2")

@@ -102,7 +102,7 @@ def test_negative_cost_in_subprocess_has_no_stray_stderr(scene):
 
 def test_huge_weights_are_an_overflow_not_unconnected_parts(scene, capsys):
     line = _refused(["plan", "--sites", scene["sites"], "--w-length", "1e308",
-                     "--out", scene["out"]], capsys, ["overflows", "--w-length 1e+308"])
+                     "--out", scene["out"]], capsys, ["overflows", "--length 1e+308"])
     assert "unconnected" not in line
 
 
