@@ -356,7 +356,7 @@ def test_cli_bad_scenario_key(project, tmp_path, capsys):
 def test_scenario_links_large_candidate_sets_keep_used_links(project, monkeypatch):
     import mainspan.scenarios as sc
 
-    monkeypatch.setattr(sc, "ALL_CANDIDATES_MAX", 10)
+    monkeypatch.setattr(sc.tables, "ALL_CANDIDATES_MAX", 10)   # where the table is built
     s = sc.run_scenarios(project, names=["plain", "strip"])
     t = s.links
     used = np.unique(np.concatenate([s[n].links["candidate_index"] for n in s.names]))

@@ -97,7 +97,7 @@ def test_a_new_design_field_appears_everywhere(monkeypatch):
         valve_spacing_m: float = 800.0
 
     monkeypatch.setattr(hyd, "DesignSettings", Extended)
-    st._all.cache_clear()
+    st.schema._all.cache_clear()
     try:
         s = setting("design", "valve_spacing_m")
         assert (s.option, s.unit, s.default, s.kind) == ("--valve-spacing-m", "m", 800.0, "number")
@@ -106,7 +106,7 @@ def test_a_new_design_field_appears_everywhere(monkeypatch):
         assert "valve_spacing_m" in st.design_help() and "default 800" in st.design_help()
     finally:
         monkeypatch.undo()
-        st._all.cache_clear()
+        st.schema._all.cache_clear()
     with pytest.raises(InputError, match="did you mean 'access_spacing_m'"):
         setting("design", "valve_spacing_m")
 

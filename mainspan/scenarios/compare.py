@@ -1,0 +1,65 @@
+"""The ``mainspan compare`` command: plan every scenario, print and write the comparison."""
+
+from __future__ import annotations
+
+import os
+import sys
+
+from .compute import run_scenarios
+from .output import layer_names, write_scenarios
+from .report import report_sections
+
+__all__ = ["compare_cli"]
+
+# ------------------------------------------------------------------------------ CLI
+def _suffixed(path, suffix):
+    stem, ext = os.path.splitext(path)
+    return f"{stem}{suffix}{ext}"
+
+
+def compare_cli(args):
+    """``mainspan compare PROJECT.toml``: plan every scenario, print and write the comparison.
+
+    Outputs: ``--out`` (GeoPackage), else ``[output] gpkg`` with ``_scenarios``
+    added before the extension; ``--report`` (HTML), else ``[output] report``
+    with ``_scenarios`` added.  Neither given: only the table is printed.
+    Stability settings come from the options, else the project's
+    ``[stability]`` section.  Returns 0; bad input raises InputError or
+    DataFileError (exit code 2 in the CLI).
+    """
+    from ..project import load_project
+    from ..writers.gpkg import check_layers_free
+
+    proj = load_project(args.project)
+    out = proj.base.get("output", {})
+    stab = proj.stability or {}
+    runs = args.stability if args.stability is not None else stab.get("runs", 0)
+    pct = args.perturb_pct if args.perturb_pct is not None else stab.get("perturb_pct", 10.0)
+    seed = args.seed if args.seed is not None else stab.get("seed", 0)
+    overwrite = bool(args.overwrite or out.get("overwrite", False))
+    gpkg = args.out or (_suffixed(out["gpkg"], "_scenarios") if out.get("gpkg") else None)
+    rep = args.report or (_suffixed(out["report"], "_scenarios") if out.get("report") else None)
+    # output safety (mainspan.safeio): same-file, project-folder and overwrite rules first
+    from ..preflight import preflight_compare
+    overwrite, rep_overwrite = preflight_compare(args, proj, gpkg, rep)
+    if gpkg:
+        check_layers_free(gpkg, layer_names(["base", *proj.scenarios]), overwrite=overwrite)
+    from ..messages import progress
+    sset = run_scenarios(proj, progress=progress(args.quiet), stability_runs=runs,
+                         perturb_pct=pct, seed=seed)
+    print(sset.table())
+    if gpkg:
+        write_scenarios(sset, gpkg, overwrite=overwrite)
+        print(f"written         {gpkg} (layers: links_/nodes_/run_info_<scenario>, "
+              "scenario_links, scenario_summary)")
+    if rep:
+        from ..report.html import write_report
+        write_report(sset["base"], rep, overwrite=rep_overwrite,
+                     title=f"Scenario comparison: {os.path.basename(proj.path)}",
+                     extra_sections=report_sections(sset))
+        print(f"report          {rep}")
+    if any(sset[n].system for n in sset.names):
+        from ..messages import CAUTION
+        print(CAUTION)
+    sys.stdout.flush()
+    return 0
