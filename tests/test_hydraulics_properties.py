@@ -9,6 +9,7 @@ fluids.open_flow.V_Manning and friction by fluids.friction.Colebrook.
 from __future__ import annotations
 
 import fluids
+import networkx as nx
 import numpy as np
 import pytest
 
@@ -106,6 +107,24 @@ def test_gravity_rules_hold(seed):
             assert lf["invert_up_m"][k] + d[k] <= lf["invert_down_m"][j] + d[j] + 1e-9
             if lf["invert_down_m"][j] - lf["invert_up_m"][k] > s.drop_manhole_m + 1e-9:
                 assert nf["structure"][node] == "drop manhole"
+    # grade walk along every leaf-to-outlet path found by networkx (not by mainspan's own network
+    # module): the invert falls at every link and every junction, except where a lift station pumps
+    # it up; the design flow never falls going downstream
+    g_nx = nx.DiGraph()
+    g_nx.add_edges_from((int(b), int(a), {"k": k}) for k, (a, b) in
+                        enumerate(zip(case["from_node"], case["to_node"])))
+    leaves = [v for v in g_nx.nodes if g_nx.in_degree(v) == 0]
+    for leaf in leaves:
+        path = nx.shortest_path(g_nx, leaf, 0)
+        ks = [g_nx.edges[a, b]["k"] for a, b in zip(path[:-1], path[1:])]
+        for up, down in zip(ks[:-1], ks[1:]):
+            assert lf["design_flow_lps"][down] >= lf["design_flow_lps"][up] - 1e-9
+            if lifted[path[ks.index(down)]] or np.any((ap["link"] == up) & (ap["kind"] == "lift station")):
+                continue
+            assert lf["invert_up_m"][down] <= lf["invert_down_m"][up] + 1e-9
+        for k in ks:
+            if not np.any((ap["link"] == k) & (ap["kind"] == "lift station") & (ap["node"] == "")):
+                assert lf["invert_down_m"][k] < lf["invert_up_m"][k]
     # flags agree with the numbers
     assert np.array_equal(["too_deep" in c for c in lf["checks"]], lf["depth_max_m"] > 4.0 + 1e-9)
 
