@@ -396,6 +396,26 @@ def directional_link_costs(
     return DirectedLinks(tails=tails, heads=heads, weights=weights, link=link)
 
 
+def profile_link_arrays(edges, base_cost, length_m, profile_offsets, profile_station_m, profile_ground_m):
+    """Candidate links and their ground profiles as checked arrays (both gravity layouts use them).
+
+    Returns ``(edges, m, base_cost, length_m, offsets, station_m, ground_m)``.
+    """
+    e = np.asarray(edges, dtype=np.int64).reshape(-1, 2)
+    m = e.shape[0]
+    base = np.asarray(base_cost, dtype=np.float64)
+    L = np.asarray(length_m, dtype=np.float64)
+    off = np.asarray(profile_offsets, dtype=np.int64)
+    st = np.asarray(profile_station_m, dtype=np.float64)
+    g = np.asarray(profile_ground_m, dtype=np.float64)
+    if off.shape != (m + 1,) or np.any(np.diff(off) < 2):
+        raise InputError("profile_offsets must give at least two samples (both ends) per link")
+    if not np.isfinite(g).all():
+        raise InputError("gravity layout: the ground profile of some candidate link has no "
+                         "data; fill the DEM or drop those links (--on-nodata barrier)")
+    return e, m, base, L, off, st, g
+
+
 def profile_directional_costs(edges, base_cost, length_m, profile_offsets, profile_station_m,
                               profile_ground_m, *, min_slope=0.004,
                               extra_depth_cost_per_m2=20.0) -> DirectedLinks:
@@ -433,18 +453,8 @@ def profile_directional_costs(edges, base_cost, length_m, profile_offsets, profi
     >>> d.weights.tolist()
     [100.0, 2100.0]
     """
-    e = np.asarray(edges, dtype=np.int64).reshape(-1, 2)
-    m = e.shape[0]
-    base = np.asarray(base_cost, dtype=np.float64)
-    L = np.asarray(length_m, dtype=np.float64)
-    off = np.asarray(profile_offsets, dtype=np.int64)
-    st = np.asarray(profile_station_m, dtype=np.float64)
-    g = np.asarray(profile_ground_m, dtype=np.float64)
-    if off.shape != (m + 1,) or np.any(np.diff(off) < 2):
-        raise InputError("profile_offsets must give at least two samples (both ends) per link")
-    if not np.isfinite(g).all():
-        raise InputError("gravity layout: the ground profile of some candidate link has no "
-                         "data; fill the DEM or drop those links (--on-nodata barrier)")
+    e, m, base, L, off, st, g = profile_link_arrays(edges, base_cost, length_m, profile_offsets,
+                                                    profile_station_m, profile_ground_m)
     link = np.repeat(np.arange(m), np.diff(off))
     starts = off[:-1]
 

@@ -54,7 +54,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .arborescence import DirectedLinks, min_arborescence, profile_directional_costs
+from .arborescence import DirectedLinks, min_arborescence, profile_directional_costs, profile_link_arrays
 from .errors import InputError
 
 __all__ = ["CarriedDepth", "GravityLayoutRounds", "price_table", "depth_arc_costs",
@@ -209,18 +209,8 @@ def depth_arc_costs(edges, base_cost, length_m, profile_offsets, profile_station
     True
     """
     s = settings
-    e = np.asarray(edges, dtype=np.int64).reshape(-1, 2)
-    m = e.shape[0]
-    base = np.asarray(base_cost, dtype=np.float64)
-    L = np.asarray(length_m, dtype=np.float64)
-    off = np.asarray(profile_offsets, dtype=np.int64)
-    st = np.asarray(profile_station_m, dtype=np.float64)
-    g = np.asarray(profile_ground_m, dtype=np.float64)
-    if off.shape != (m + 1,) or np.any(np.diff(off) < 2):
-        raise InputError("profile_offsets must give at least two samples (both ends) per link")
-    if not np.isfinite(g).all():
-        raise InputError("gravity layout: the ground profile of some candidate link has no data; "
-                         "fill the DEM or drop those links (--on-nodata barrier)")
+    e, m, base, L, off, st, g = profile_link_arrays(edges, base_cost, length_m, profile_offsets,
+                                                    profile_station_m, profile_ground_m)
     d0 = np.nan_to_num(np.asarray(start_depth_m, dtype=np.float64), nan=0.0)
     q = np.nan_to_num(np.asarray(flow_lps, dtype=np.float64), nan=0.0) / 1000.0
     prices = price_table(s) if prices is None else prices

@@ -502,6 +502,22 @@ def connected_components(n_nodes, edges, *, weights=None) -> np.ndarray:
     return rank[lab]
 
 
+def forest_roots(n_nodes, edges, weights, roots, *, allow_forest):
+    """Roots for a graph the given roots do not span: each unrooted part gains its lowest node.
+
+    Raises :class:`DisconnectedError` naming the parts unless ``allow_forest``.
+    """
+    labels = connected_components(n_nodes, edges, weights=weights)
+    if not allow_forest:
+        raise DisconnectedError(_disconnected_message(labels, roots), components=labels)
+    n_comp = int(labels.max()) + 1
+    rooted = np.zeros(n_comp, dtype=bool)
+    rooted[labels[roots]] = True
+    first = np.full(n_comp, n_nodes, dtype=np.int64)
+    np.minimum.at(first, labels, np.arange(n_nodes, dtype=np.int64))
+    return np.concatenate([roots, first[~rooted]])
+
+
 def _disconnected_message(labels, roots):
     n_comp = int(labels.max()) + 1
     sizes = np.bincount(labels, minlength=n_comp)
@@ -628,15 +644,7 @@ def prim_tree(n_nodes, edges, weights, *, roots=(0,), allow_forest=False,
     indptr, buf = _build_csr(n, e[:, 0], e[:, 1], w, label)
     best_par, best_edge, order, count = _prim_kernel(n, indptr, buf, orig, label[r])
     if count < n:
-        labels = connected_components(n, e, weights=w)
-        if not allow_forest:
-            raise DisconnectedError(_disconnected_message(labels, r), components=labels)
-        n_comp = int(labels.max()) + 1
-        rooted = np.zeros(n_comp, dtype=bool)
-        rooted[labels[r]] = True
-        first = np.full(n_comp, n, dtype=np.int64)
-        np.minimum.at(first, labels, np.arange(n, dtype=np.int64))
-        r = np.concatenate([r, first[~rooted]])
+        r = forest_roots(n, e, w, r, allow_forest=allow_forest)
         best_par, best_edge, order, count = _prim_kernel(n, indptr, buf, orig, label[r])
         assert count == n
     parent, parent_edge, order_o, root_of = _map_back(n, best_par, best_edge, order, orig, r)

@@ -68,7 +68,7 @@ from dataclasses import dataclass, field
 import numba
 import numpy as np
 
-from .errors import DisconnectedError, InputError
+from .errors import InputError
 from .spanning import Tree
 
 __all__ = ["WholeCostSettings", "tradeoff_tree", "tree_from_parents", "exchange_search",
@@ -315,8 +315,7 @@ def tradeoff_tree(n_nodes, edges, weights, alpha, *, roots=(0,), allow_forest=Fa
     >>> tradeoff_tree(3, e, w, 0.0).parent.tolist(), tradeoff_tree(3, e, w, 1.0).parent.tolist()
     ([-1, 0, 1], [-1, 0, 0])
     """
-    from .spanning import (_check_edges, _check_n_nodes, _check_roots, _check_weights,
-                           _disconnected_message, _frozen, connected_components)
+    from .spanning import _check_edges, _check_n_nodes, _check_roots, _check_weights, _frozen, forest_roots
 
     a = float(alpha)
     if not (np.isfinite(a) and 0.0 <= a <= 1.0):
@@ -328,15 +327,7 @@ def tradeoff_tree(n_nodes, edges, weights, alpha, *, roots=(0,), allow_forest=Fa
     indptr, nbr, aid = _arcs(n, e, w)
     parent, pedge, order, cnt = _pd_kernel(n, indptr, nbr, aid, w, r, a)
     if cnt < n:
-        labels = connected_components(n, e, weights=w)
-        if not allow_forest:
-            raise DisconnectedError(_disconnected_message(labels, r), components=labels)
-        n_comp = int(labels.max()) + 1
-        rooted = np.zeros(n_comp, dtype=bool)
-        rooted[labels[r]] = True
-        first = np.full(n_comp, n, dtype=np.int64)
-        np.minimum.at(first, labels, np.arange(n, dtype=np.int64))
-        r = np.concatenate([r, first[~rooted]])
+        r = forest_roots(n, e, w, r, allow_forest=allow_forest)
         parent, pedge, order, cnt = _pd_kernel(n, indptr, nbr, aid, w, r, a)
     root_of = np.empty(n, np.int64)
     for v in order:                      # parents come first in order
