@@ -41,7 +41,7 @@ def main(argv=None):
 
     import networkx as nx
 
-    from mainspan.arborescence import min_arborescence
+    from mainspan.graph.arborescence import min_arborescence
 
     rng = np.random.default_rng(a.seed)
     min_arborescence(3, [0, 1], [1, 2], [1.0, 1.0], root=0)  # compile the numba kernels

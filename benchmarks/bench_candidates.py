@@ -77,8 +77,8 @@ def main(argv=None):
     import shapely
     from scipy.spatial import Delaunay
 
-    from mainspan import candidates
-    from mainspan.candidates import build_candidates
+    from mainspan.graph import candidates
+    from mainspan.graph.candidates import build_candidates
 
     rng = np.random.default_rng(a.seed)
     n = a.n

@@ -2,13 +2,13 @@
 
 Prints, in one run:
 
-1. a full :func:`mainspan.costs.price_links` run over the Delaunay links of random sites on a
+1. a full :func:`mainspan.ground.costs.price_links` run over the Delaunay links of random sites on a
    tiled DEM plus a land-cost raster (generated in a temporary directory): time, terrain
    samples and land-cost cell crossings per second, with peak memory (tracemalloc peak of
    the costing call, and the process's maximum resident set size);
 2. the reference: rasterio ``DatasetReader.sample`` reading profile positions of the links
    one by one (nearest-cell values) -- points per second;
-3. :meth:`mainspan.surfaces.Surface.sample` on the same positions (bilinear, tile-grouped) --
+3. :meth:`mainspan.ground.surfaces.Surface.sample` on the same positions (bilinear, tile-grouped) --
    samples per second and the ratio to the reference (target >= 100x).
 
 Usage::
@@ -31,8 +31,8 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from mainspan.costs import CostWeights, price_links  # noqa: E402
-from mainspan.surfaces import open_surface  # noqa: E402
+from mainspan.ground.costs import CostWeights, price_links  # noqa: E402
+from mainspan.ground.surfaces import open_surface  # noqa: E402
 
 CRS = "EPSG:32633"
 X0, Y1, CELL = 400000.0, 5200000.0, 5.0

@@ -141,9 +141,9 @@ def bench_sizing(sizes, seed=0):
 def demo_design_inputs():
     """Plan the Kestrel Flats demo; return the design_network inputs of its tree (as the layout passes them)."""
     from mainspan.demo import demo_files
-    from mainspan.layout import _basis_fields, _design_settings, plan_layout
-    from mainspan.project import load_project, plan_kwargs
-    from mainspan.sites import read_sites
+    from mainspan.pipeline.layout import _basis_fields, _design_settings, plan_layout
+    from mainspan.settings.project import load_project, plan_kwargs
+    from mainspan.sites.read import read_sites
 
     files = demo_files(tempfile.mkdtemp(prefix="bench_design_"))
     proj = load_project(files["kestrel.toml"])
@@ -225,7 +225,7 @@ def bench_whole_cost(sizes, seed=0, budgets=None):
     (a pass that took no exchange) or stopped at the budget.
     """
     import mainspan as ms
-    from mainspan.wholecost import whole_life_cost
+    from mainspan.graph.wholecost import whole_life_cost
 
     budgets = budgets or {}
     kw = dict(system="pressure", use_site_z=True, candidates="delaunay")

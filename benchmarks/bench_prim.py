@@ -51,8 +51,8 @@ def main(argv=None):
     from scipy.sparse import coo_matrix
     from scipy.sparse.csgraph import minimum_spanning_tree
 
-    from mainspan.candidates import build_candidates, spatial_order
-    from mainspan.spanning import certify_tree, prim_tree
+    from mainspan.graph.candidates import build_candidates, spatial_order
+    from mainspan.graph.spanning import certify_tree, prim_tree
 
     rng = np.random.default_rng(a.seed)
 

@@ -22,11 +22,11 @@ from .errors import (CertificateError, DataFileError, DisconnectedError,  # noqa
 # Public names are imported on first use, so ``import mainspan`` stays quick and
 # the command line pays only for the stages it runs.
 _LAZY = {
-    "Layout": "layout", "plan_layout": "layout", "read_layout": "layout",
-    "Sites": "sites", "read_sites": "sites", "sites_from_arrays": "sites",
-    "Tree": "spanning", "prim_tree": "spanning", "certify_tree": "spanning",
-    "build_candidates": "candidates", "show_versions": "versions",
-    "run_scenarios": "scenarios", "write_scenarios": "scenarios", "load_project": "project",
+    "Layout": "pipeline.layout", "plan_layout": "pipeline.layout", "read_layout": "pipeline.layout",
+    "Sites": "sites.read", "read_sites": "sites.read", "sites_from_arrays": "sites.read",
+    "Tree": "graph.spanning", "prim_tree": "graph.spanning", "certify_tree": "graph.spanning",
+    "build_candidates": "graph.candidates", "show_versions": "versions",
+    "run_scenarios": "scenarios", "write_scenarios": "scenarios", "load_project": "settings.project",
 }
 
 __all__ = sorted([

@@ -15,8 +15,8 @@ from ._version import __version__
 from .errors import DataFileError, InputError, MainspanError
 from .messages import CAUTION, format_quantities, print_design
 from .messages import progress as _progress
-from .preflight import inputs_of as _inputs_of  # noqa: F401 - older private name
-from .preflight import preflight_compare, preflight_outputs  # noqa: F401
+from .pipeline.preflight import inputs_of as _inputs_of  # noqa: F401 - older private name
+from .pipeline.preflight import preflight_compare, preflight_outputs  # noqa: F401
 
 _print_design = print_design   # the older private name, kept for callers
 
@@ -150,7 +150,7 @@ def _settings_from(a):
     Every value and the rules between them are checked here, before any work
     (:func:`mainspan.settings.check_settings`).
     """
-    from .project import load_project
+    from .settings.project import load_project
     from .settings import PlanSettings
 
     flags, origin = _flags_to_settings(a)
@@ -173,9 +173,9 @@ def _settings_from(a):
 
 def _run_plan(settings, *, quiet=False):
     """Read the sites and plan; *settings* is a PlanSettings or a settings dict."""
-    from .layout import plan_layout
+    from .pipeline.layout import plan_layout
     from .settings import PlanSettings
-    from .sites import read_sites
+    from .sites.read import read_sites
 
     ps = settings if isinstance(settings, PlanSettings) else PlanSettings.from_sections(settings)
     sites = read_sites(ps.sites_path, **ps.read_kwargs())
@@ -241,7 +241,7 @@ def cmd_plan(a):
 
 
 def cmd_check(a):
-    from .check import check_inputs
+    from .pipeline.check import check_inputs
 
     ps, proj = _settings_from(a)     # every value and combination checked here
     settings = ps.sections
@@ -261,7 +261,7 @@ def cmd_demo(a):
 
 
 def cmd_export(a):
-    from .layout import read_layout
+    from .pipeline.layout import read_layout
 
     to = a.to
     ext = os.path.splitext(to)[1].lower()
@@ -334,7 +334,7 @@ def _has_ground(lay) -> bool:
 
 
 def cmd_report(a):
-    from .layout import read_layout
+    from .pipeline.layout import read_layout
     from .report.html import write_report
 
     from .safeio import OutputSpec, preflight

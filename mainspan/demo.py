@@ -63,9 +63,9 @@ def run_demo(outdir, *, overwrite=False, quiet=False, write_extras=True):
     """Write the demo inputs to ``OUTDIR/inputs`` and plan both scenarios into OUTDIR."""
     from .messages import CAUTION, print_design
     from .messages import progress as _progress
-    from .layout import plan_layout
-    from .project import load_project, plan_kwargs
-    from .sites import read_sites
+    from .pipeline.layout import plan_layout
+    from .settings.project import load_project, plan_kwargs
+    from .sites.read import read_sites
 
     outdir = os.fspath(outdir)
     outputs = ["kestrel_layout.gpkg", "kestrel_report.html", "kestrel_layout.dxf",
@@ -79,7 +79,7 @@ def run_demo(outdir, *, overwrite=False, quiet=False, write_extras=True):
                                  "another folder")
     inputs = os.path.join(outdir, "inputs")
     files = demo_files(inputs)
-    from .prices import default_prices, write_prices_csv
+    from .hydraulics.prices import default_prices, write_prices_csv
     files["prices.csv"] = os.path.join(inputs, "prices.csv")   # an editable template (--prices FILE)
     if overwrite or not os.path.exists(files["prices.csv"]):
         write_prices_csv(default_prices(), files["prices.csv"], overwrite=True)
@@ -190,7 +190,7 @@ def _pump_head(summary):
 
 def _whole_cost_vs_prim(whole, prim) -> str:
     """What the whole-cost layout saves against Prim's tree of link costs with rule sizing."""
-    from .wholecost import whole_life_cost
+    from .graph.wholecost import whole_life_cost
 
     sw, sp = whole.design.summary, prim.design.summary
     cw, cp = whole_life_cost(sw), whole_life_cost(sp)

@@ -1,4 +1,4 @@
-"""Small synthetic :class:`mainspan.layout.Layout` objects for the writer and report tests.
+"""Small synthetic :class:`mainspan.pipeline.layout.Layout` objects for the writer and report tests.
 
 They are built directly (no pipeline) so the writer tests do not depend on the
 planning stages: a 7-site tree in UTM zone 33N with large coordinates (so the
@@ -17,7 +17,7 @@ from __future__ import annotations
 import numpy as np
 import pyproj
 
-from mainspan.layout import Layout, Profiles
+from mainspan.pipeline.layout import Layout, Profiles
 
 _IDS = np.array(["S", "A", "B", "C", "D", "E", "F"], dtype=object)
 _XY = np.array([

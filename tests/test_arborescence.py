@@ -16,7 +16,7 @@ import networkx as nx
 import numpy as np
 import pytest
 
-from mainspan.arborescence import directional_link_costs, min_arborescence
+from mainspan.graph.arborescence import directional_link_costs, min_arborescence
 from mainspan.errors import InputError
 
 
@@ -166,7 +166,7 @@ def test_directional_costs_make_the_tree_drain_downhill():
 def test_profile_costs_equal_end_point_costs_on_straight_ground():
     # on a straight ground line the profile model reduces to the closed form of
     # directional_link_costs (calc: mean depth below cover = extra_end / 2)
-    from mainspan.arborescence import directional_link_costs, profile_directional_costs
+    from mainspan.graph.arborescence import directional_link_costs, profile_directional_costs
     rng = np.random.default_rng(4)
     n, m = 30, 60
     z = rng.uniform(100, 120, n)
@@ -189,7 +189,7 @@ def test_profile_costs_equal_end_point_costs_on_straight_ground():
 def test_profile_costs_price_a_dip_like_brute_force():
     # a stream dip between two sites at equal level: the straight pipe must steepen to keep
     # cover at the dip; brute force over the stations gives the same extra depth
-    from mainspan.arborescence import profile_directional_costs
+    from mainspan.graph.arborescence import profile_directional_costs
     L = 100.0
     s = np.linspace(0, L, 101)
     g = 50.0 - 2.0 * np.exp(-((s - 30.0) / 5.0) ** 2)

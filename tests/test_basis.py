@@ -13,7 +13,7 @@ from mainspan.hydraulics import DesignSettings, design_network
 from mainspan.hydraulics.basis import (babbitt_peaking_factor, harmon_peaking_factor,
                                        idf_intensity_mm_per_h, parse_idf, rational_flow_m3ps,
                                        sanitary_flows, storm_flows, times_of_concentration_min)
-from mainspan.network import rooted_network
+from mainspan.graph.network import rooted_network
 
 IDF = ((5.0, 150.0), (10.0, 110.0), (20.0, 75.0), (30.0, 58.0), (60.0, 36.0), (120.0, 22.0))
 
@@ -203,8 +203,8 @@ def test_settings_and_input_errors():
 
 
 def test_sites_read_basis_fields_and_project_idf(tmp_path):
-    from mainspan.project import load_project, plan_kwargs
-    from mainspan.sites import read_sites
+    from mainspan.settings.project import load_project, plan_kwargs
+    from mainspan.sites.read import read_sites
 
     p = tmp_path / "s.csv"
     p.write_text("id,x,y,role,area_ha,runoff_c,population\nO,0,0,outlet,,,\n"
@@ -238,7 +238,7 @@ def test_landxml_net_type_follows_the_basis(tmp_path, basis, net_type):
 
 
 def test_merged_sites_keep_sum_of_c_times_a():
-    from mainspan.sites import sites_from_arrays
+    from mainspan.sites.read import sites_from_arrays
 
     s = sites_from_arrays([[0, 0], [0.0005, 0], [100, 0]], crs="EPSG:32633", merge_within_m=0.01,
                           area_ha=[1.0, 3.0, 2.0], runoff_c=[0.9, 0.3, 0.5], population=[10, 5, 1])

@@ -1,4 +1,4 @@
-"""Tests of mainspan.candidates: candidate link builders and their normalisation.
+"""Tests of mainspan.graph.candidates: candidate link builders and their normalisation.
 
 References outside the project: shapely/GEOS ``delaunay_triangles`` (an independent Delaunay
 implementation), scipy ``cdist`` brute-force distances, scipy ``minimum_spanning_tree`` on the
@@ -16,10 +16,10 @@ from hypothesis import strategies as st
 from scipy.sparse.csgraph import minimum_spanning_tree
 from scipy.spatial.distance import cdist
 
-from mainspan.candidates import (CANDIDATE_BUILDERS, Candidates, build_candidates,
+from mainspan.graph.candidates import (CANDIDATE_BUILDERS, Candidates, build_candidates,
                                  normalize_edges, spatial_order)
 from mainspan.errors import InputError
-from mainspan.spanning import prim_tree
+from mainspan.graph.spanning import prim_tree
 
 
 def lengths(xy, edges):
@@ -125,7 +125,7 @@ class TestDelaunay(BuilderContract):
         assert geos == ref
 
     def test_backends_agree_and_geos_check_refuses_doubtful_input(self):
-        from mainspan.candidates import _geos, _qhull
+        from mainspan.graph.candidates import _geos, _qhull
 
         xy = random_xy(2000, seed=14)
         idx = np.arange(len(xy))
@@ -333,8 +333,8 @@ def test_builders_are_registered():
 
 @pytest.mark.parametrize("case", ["uniform", "clustered", "grid", "grid_jittered"])
 def test_split_delaunay_equals_single_run(case, monkeypatch):
-    from mainspan import candidates
-    from mainspan.candidates import _qhull_split, delaunay_links
+    from mainspan.graph import candidates
+    from mainspan.graph.candidates import _qhull_split, delaunay_links
 
     rng = np.random.default_rng(13)
     if case == "uniform":

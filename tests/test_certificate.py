@@ -23,7 +23,7 @@ from hypothesis import strategies as st
 from scipy.spatial import Delaunay
 
 from mainspan.errors import CertificateError
-from mainspan.spanning import Tree, certify_tree, check_certificate, prim_tree
+from mainspan.graph.spanning import Tree, certify_tree, check_certificate, prim_tree
 
 SETTINGS = dict(max_examples=12, deadline=None, derandomize=True,
                 suppress_health_check=[HealthCheck.too_slow])

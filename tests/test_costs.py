@@ -11,10 +11,10 @@ import rasterio
 import shapely
 from rasterio.transform import from_origin
 
-from mainspan.costs import (BASE_COMPONENTS, COST_TERMS, CostWeights, LinkCosts, node_elevations,
+from mainspan.ground.costs import (BASE_COMPONENTS, COST_TERMS, CostWeights, LinkCosts, node_elevations,
                             price_links, sites_outside)
 from mainspan.errors import InputError
-from mainspan.surfaces import open_surface
+from mainspan.ground.surfaces import open_surface
 
 UTM33 = "EPSG:32633"
 X0, Y1, CELL = 500000.0, 5002000.0, 10.0

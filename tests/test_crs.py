@@ -7,7 +7,7 @@ import pyproj
 import pytest
 
 from mainspan import InputError, read_sites
-from mainspan.crs import choose_working_crs, scale_factor_range, to_crs, utm_epsg
+from mainspan.sites.crs import choose_working_crs, scale_factor_range, to_crs, utm_epsg
 from tests.conftest import LIBPYSAL_EXAMPLES, write_points
 
 

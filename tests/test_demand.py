@@ -6,7 +6,7 @@ from scipy.stats import norm
 
 from mainspan.errors import InputError
 from mainspan.hydraulics import DesignSettings, design_network
-from mainspan.network import accumulate, clement_flow_lps, rooted_network
+from mainspan.graph.network import accumulate, clement_flow_lps, rooted_network
 
 
 def _clement_by_hand(q, r, u):

@@ -54,7 +54,7 @@ def test_pressure_demo_is_sized_and_checked(demo):
     # fittings as a point layer; the editable price template reads back as the flagged placeholders
     fit = _read(demo / "kestrel_layout.gpkg", "fittings")
     assert {"type", "size_mm", "link_id", "chainage_m", "node"} <= set(fit.columns) and len(fit) > 0
-    from mainspan.prices import default_prices, read_prices
+    from mainspan.hydraulics.prices import default_prices, read_prices
     tmpl = read_prices(demo / "inputs" / "prices.csv")
     assert tmpl == default_prices() and tmpl.placeholder
 

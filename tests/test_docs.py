@@ -26,8 +26,8 @@ DOCTEST_MODULES = [name for name in MODULES if _n_examples(name)]
 
 
 def test_core_modules_have_examples():
-    core = {"mainspan.spanning", "mainspan.surfaces", "mainspan.costs", "mainspan.network",
-            "mainspan.hydraulics.friction", "mainspan.candidates"}
+    core = {"mainspan.graph.spanning", "mainspan.ground.surfaces", "mainspan.ground.costs", "mainspan.graph.network",
+            "mainspan.hydraulics.friction", "mainspan.graph.candidates"}
     assert core <= set(DOCTEST_MODULES), core - set(DOCTEST_MODULES)
 
 

@@ -8,7 +8,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from mainspan.errors import InputError
-from mainspan.expression import compile_expression
+from mainspan.ground.expression import compile_expression
 
 NAMES = ["base", "wetland", "slope"]
 ENV = {"base": np.array([40.0, 40.0, 90.0, 10.0]),

@@ -5,7 +5,7 @@ import pytest
 
 from mainspan.hydraulics import DesignSettings, design_network
 from mainspan.hydraulics.fittings import place_fittings
-from mainspan.network import rooted_network
+from mainspan.graph.network import rooted_network
 
 
 def _chain(ground_profiles, xy, nominal=110.0, **kw):
@@ -85,7 +85,7 @@ def test_design_writes_fittings_priced_in_the_bill(tmp_path):
     q = r.quantities
     rows = q["category"] == "fitting"
     assert q["count"][rows].sum() == len(fit["type"])
-    from mainspan.prices import default_prices
+    from mainspan.hydraulics.prices import default_prices
     p = default_prices()
     want = sum(float(p.fitting_cost(k, s)) for k, s in zip(fit["type"], fit["size_mm"]))
     assert q["total_cost"][rows].sum() == pytest.approx(want)

@@ -3,8 +3,8 @@
 import numpy as np
 import pytest
 
-from mainspan.arborescence import min_arborescence
-from mainspan.gravity_layout import CarriedDepth, depth_arc_costs, depth_aware_tree, tree_designer
+from mainspan.graph.arborescence import min_arborescence
+from mainspan.graph.gravity_layout import CarriedDepth, depth_arc_costs, depth_aware_tree, tree_designer
 from mainspan.hydraulics import DesignSettings
 
 # Two valleys split by a ridge that stops short of the east end (x < 380 m): the north one
@@ -51,7 +51,7 @@ def _links(parent):
 
 
 def test_depth_aware_tree_follows_the_valley_round_the_ridge():
-    from mainspan.spanning import prim_tree
+    from mainspan.graph.spanning import prim_tree
 
     e, length, arb, arcs, rounds = _run()
     ab = (1, 4)                                  # A-B: the short way, straight over the ridge
@@ -86,7 +86,7 @@ def test_rounds_are_deterministic():
 
 
 def test_round_zero_only_is_the_earlier_layout():
-    from mainspan.arborescence import profile_directional_costs
+    from mainspan.graph.arborescence import profile_directional_costs
 
     e, length, off, st, gz = _candidates()
     _, _, arb, _, rounds = _run(max_rounds=0)

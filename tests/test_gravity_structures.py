@@ -16,7 +16,7 @@ import pytest
 from mainspan.errors import DataFileError
 from mainspan.hydraulics import DesignSettings, design_network
 from mainspan.hydraulics.catalog import default_gravity_catalog, read_catalog
-from mainspan.prices import default_prices
+from mainspan.hydraulics.prices import default_prices
 
 TOP = 0.2073            # 8 in PVC SDR 35: bore 201.2 mm + wall 6.1 mm (OD 213.4 mm / 35)
 

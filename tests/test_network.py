@@ -7,7 +7,7 @@ import numpy as np
 import pytest
 
 from mainspan.errors import InputError
-from mainspan.network import (
+from mainspan.graph.network import (
     FLOW_FROM_TO,
     accumulate,
     cost_to_root,

@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from mainspan.errors import DataFileError
-from mainspan.prices import (PriceTable, annuity_factor, default_prices, prices_from_mapping, read_prices,
+from mainspan.hydraulics.prices import (PriceTable, annuity_factor, default_prices, prices_from_mapping, read_prices,
                              write_prices_csv)
 
 
@@ -117,7 +117,7 @@ def test_toml_table_and_errors(tmp_path):
 
 
 def test_project_prices_section_and_cli(tmp_path, monkeypatch):
-    from mainspan.project import load_project, plan_kwargs
+    from mainspan.settings.project import load_project, plan_kwargs
     (tmp_path / "p.toml").write_text('[sites]\npath = "s.gpkg"\n[design]\nsystem = "pressure"\n'
                                      '[prices]\nplaceholder = false\n\nbedding = -1.0\n')
     with pytest.raises(DataFileError, match=r"\[prices\], line 8, column 'value': -1.0 must be >= 0"):
@@ -159,8 +159,8 @@ def test_reinstatement_by_land_use_raster(tmp_path):
     import rasterio
     from rasterio.transform import from_origin
 
-    from mainspan.layout import plan_layout
-    from mainspan.sites import read_sites
+    from mainspan.pipeline.layout import plan_layout
+    from mainspan.sites.read import read_sites
     from tests.conftest import write_points
 
     # 10 m cells, class 1 (cropland) everywhere but a road strip (class 5) from x = 512100 to 512120

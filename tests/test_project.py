@@ -3,7 +3,7 @@
 import pytest
 
 from mainspan import InputError
-from mainspan.project import load_project, plan_kwargs
+from mainspan.settings.project import load_project, plan_kwargs
 
 
 def write(tmp_path, text):

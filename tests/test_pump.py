@@ -5,7 +5,7 @@ import pytest
 
 from mainspan.hydraulics import DesignSettings, design_network
 from mainspan.hydraulics.pump import pump_duty
-from mainspan.prices import annuity_factor, default_prices
+from mainspan.hydraulics.prices import annuity_factor, default_prices
 
 
 def test_pump_power_formula():

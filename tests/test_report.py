@@ -15,7 +15,7 @@ except ImportError:
     from conftest_layouts import make_layout
 
 from mainspan.errors import InputError, OverwriteError  # noqa: E402
-from mainspan.layout import Layout  # noqa: E402
+from mainspan.pipeline.layout import Layout  # noqa: E402
 from mainspan.report import plots  # noqa: E402
 from mainspan.report.html import CAUTIONS, report_html, write_report  # noqa: E402
 

@@ -77,7 +77,7 @@ def test_missing_or_unwritable_output_folder_refused_before_work(tmp_path, sites
     monkeypatch.setattr("mainspan.safeio.os.access",
                         lambda p, m, **kw: False if os.fspath(p) == str(locked)
                         else real_access(p, m, **kw))
-    import mainspan.layout as layout_mod
+    import mainspan.pipeline.layout as layout_mod
     monkeypatch.setattr(layout_mod, "plan_layout", lambda *a, **k: pytest.fail("computed"))
     line = _refused(["plan", "--sites", sites, "--out", tmp_path / "ok.gpkg",
                      "--report", locked / "r.html"], capsys, ["not writable", "ro"])

@@ -163,9 +163,9 @@ def test_regret_diagonal_is_column_minimum_and_optimal(sset):
 
 
 def test_matches_plan_layout_exactly(sset, project):
-    from mainspan.layout import plan_layout
-    from mainspan.project import load_project, plan_kwargs
-    from mainspan.sites import read_sites
+    from mainspan.pipeline.layout import plan_layout
+    from mainspan.settings.project import load_project, plan_kwargs
+    from mainspan.sites.read import read_sites
 
     proj = load_project(project)
     for name in ("base", "strip", "scaled_expr"):
@@ -192,11 +192,11 @@ def test_shared_work_counts(sset):
 def test_changed_raster_is_the_only_one_sampled(project, monkeypatch):
     import rasterio
 
-    import mainspan.surfaces as surfaces
-    from mainspan.layout import plan_layout
-    from mainspan.project import load_project, plan_kwargs
+    import mainspan.ground.surfaces as surfaces
+    from mainspan.pipeline.layout import plan_layout
+    from mainspan.settings.project import load_project, plan_kwargs
     from mainspan.scenarios import run_scenarios
-    from mainspan.sites import read_sites
+    from mainspan.sites.read import read_sites
 
     opens, reads = {}, {}
     real_open, real_read = rasterio.open, surfaces.Surface._read_window
@@ -367,7 +367,7 @@ def test_scenario_links_large_candidate_sets_keep_used_links(project, monkeypatc
 
 
 def test_regret_across_candidate_sets(project, tmp_path):
-    from mainspan.costs import CostWeights, price_links
+    from mainspan.ground.costs import CostWeights, price_links
     from mainspan.scenarios import run_scenarios
 
     text = open(project).read() + textwrap.dedent("""
@@ -415,10 +415,10 @@ def test_bad_scenario_setting_names_the_scenario(project, tmp_path):
 
 
 def test_designed_scenario_matches_plan_layout(project, tmp_path):
-    from mainspan.layout import plan_layout
-    from mainspan.project import load_project, plan_kwargs
+    from mainspan.pipeline.layout import plan_layout
+    from mainspan.settings.project import load_project, plan_kwargs
     from mainspan.scenarios import run_scenarios
-    from mainspan.sites import read_sites
+    from mainspan.sites.read import read_sites
 
     text = open(project).read() + '\n[scenarios.sized]\ndesign = { system = "pressure" }\n'
     path = tmp_path / "sized.toml"

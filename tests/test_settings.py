@@ -42,7 +42,7 @@ def _cli_settings(parser):
 
 
 def test_cli_project_and_run_info_expose_the_same_settings(tmp_path):
-    from mainspan.project import _schema
+    from mainspan.settings.project import _schema
 
     schema = {s.name: s for s in all_settings()}
     cli = _cli_settings(_plan_parser())
@@ -80,7 +80,7 @@ def test_a_new_design_field_appears_everywhere(monkeypatch):
     project-file keys and --help with its unit and default."""
     import mainspan.hydraulics as hyd
     import mainspan.settings as st
-    from mainspan.project import _schema
+    from mainspan.settings.project import _schema
 
     base = hyd.DesignSettings
 
@@ -141,9 +141,9 @@ def no_work(monkeypatch):
             calls.append(name)
             raise AssertionError(f"{name} ran before the settings were checked")
         return f
-    monkeypatch.setattr("mainspan.sites.read_sites", stage("read_sites"))
-    monkeypatch.setattr("mainspan.candidates.build_candidates", stage("build_candidates"))
-    monkeypatch.setattr("mainspan.costs.price_links", stage("price_links"))
+    monkeypatch.setattr("mainspan.sites.read.read_sites", stage("read_sites"))
+    monkeypatch.setattr("mainspan.graph.candidates.build_candidates", stage("build_candidates"))
+    monkeypatch.setattr("mainspan.ground.costs.price_links", stage("price_links"))
     return calls
 
 
@@ -208,7 +208,7 @@ def test_scenarios_are_all_checked_before_any_work(tmp_path, no_work):
 
 def test_plan_layout_keywords_are_checked_by_the_schema(monkeypatch):
     calls = []
-    monkeypatch.setattr("mainspan.candidates.build_candidates",
+    monkeypatch.setattr("mainspan.graph.candidates.build_candidates",
                         lambda *a, **k: calls.append(1))
     s = mainspan.sites_from_arrays([[0, 0], [100, 0], [0, 100]], crs="EPSG:32633")
     for kw, needle in [
@@ -288,7 +288,7 @@ def test_no_module_imports_the_cli_and_there_are_no_cycles():
     import networkx as nx
 
     graph = _import_graph()
-    assert len(graph) > 30 and "mainspan.settings" in graph["mainspan.layout"]
+    assert len(graph) > 30 and "mainspan.settings" in graph["mainspan.pipeline.layout"]
     users = sorted(m for m, deps in graph.items() if "mainspan.cli" in deps)
     assert users == ["mainspan.__main__"], users       # only the entry point
     g = nx.DiGraph([(a, b) for a, deps in graph.items() for b in deps])

@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 
 from mainspan import InputError, DataFileError, read_sites
-from mainspan.sites import sites_from_arrays
+from mainspan.sites.read import sites_from_arrays
 from tests.conftest import write_points
 
 XY = np.array([[512000.0, 5120000.0], [512100.0, 5120000.0], [512100.0, 5120100.0]])

@@ -18,7 +18,7 @@ from mainspan.hydraulics.sizing import (
     material_modulus_pa,
     surge_head_m,
 )
-from mainspan.network import rooted_network
+from mainspan.graph.network import rooted_network
 
 
 def random_problem(seed, n, P, free):
@@ -253,8 +253,8 @@ def test_bad_sizing_settings_name_the_option(kw):
 
 
 def test_min_pressure_field_reaches_the_design(tmp_path):
-    from mainspan.layout import plan_layout
-    from mainspan.sites import read_sites
+    from mainspan.pipeline.layout import plan_layout
+    from mainspan.sites.read import read_sites
 
     p = tmp_path / "s.csv"
     p.write_text("id,x,y,role,q,pmin\nS,0,0,source,0,\nA,300,0,demand,2,30\nB,600,50,demand,3,\n"

@@ -1,4 +1,4 @@
-"""Tests of mainspan.spanning: Prim trees, forests and the optimality certificate.
+"""Tests of mainspan.graph.spanning: Prim trees, forests and the optimality certificate.
 
 Reference implementations outside the project: networkx (``minimum_spanning_tree``, Prim and
 Kruskal in pure Python) and scipy (``scipy.sparse.csgraph.minimum_spanning_tree``, Kruskal in
@@ -18,7 +18,7 @@ from scipy.sparse import coo_matrix
 from scipy.sparse.csgraph import minimum_spanning_tree
 
 from mainspan.errors import CertificateError, DisconnectedError, InputError
-from mainspan.spanning import (Certificate, Tree, certify_tree, check_certificate,
+from mainspan.graph.spanning import (Certificate, Tree, certify_tree, check_certificate,
                                connected_components, prim_tree)
 
 

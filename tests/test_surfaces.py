@@ -15,7 +15,7 @@ from hypothesis import strategies as st
 from rasterio.transform import from_origin
 
 from mainspan.errors import DataFileError, InputError
-from mainspan.surfaces import Surface, open_surface, traverse_grid
+from mainspan.ground.surfaces import Surface, open_surface, traverse_grid
 
 UTM33 = "EPSG:32633"
 

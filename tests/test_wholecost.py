@@ -17,8 +17,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from mainspan.errors import InputError
-from mainspan.spanning import prim_tree
-from mainspan.wholecost import (RuleEstimate, WholeCostSettings, apply_exchange,
+from mainspan.graph.spanning import prim_tree
+from mainspan.graph.wholecost import (RuleEstimate, WholeCostSettings, apply_exchange,
                                 estimate_moves, exchange_search, tradeoff_tree,
                                 tree_from_parents)
 
@@ -192,7 +192,7 @@ def test_neighbourhood_is_every_single_exchange():
 def _simple_price(e, demand, length, seed=0):
     """Cost model for the search tests: link cost grows with the flow it carries."""
     def price(tree):
-        from mainspan.network import accumulate, rooted_network
+        from mainspan.graph.network import accumulate, rooted_network
         child = np.flatnonzero(tree.parent >= 0)
         net = rooted_network(tree.parent.size, tree.parent[child], child, roots=tree.roots)
         q = accumulate(net, demand)
@@ -256,7 +256,7 @@ def test_search_with_every_move_priced_is_a_local_optimum(seed, n):
 
 
 def _tree_of(n, e, w, links):
-    from mainspan.network import rooted_network
+    from mainspan.graph.network import rooted_network
     links = np.asarray(links, np.int64)
     net = rooted_network(n, e[links, 0], e[links, 1], roots=[0])
     parent = np.full(n, -1, np.int64)
@@ -300,7 +300,7 @@ def plans():
 
 
 def test_whole_cost_plan_no_dearer_than_prim(plans):
-    from mainspan.wholecost import whole_life_cost
+    from mainspan.graph.wholecost import whole_life_cost
 
     whole, prim, _ = plans
     ri = whole.run_info
@@ -340,7 +340,7 @@ def test_whole_cost_needs_pressure_system():
 
 def test_cli_layout_choices_come_from_layout():
     from mainspan.cli import build_parser
-    from mainspan.layout import LAYOUTS
+    from mainspan.pipeline.layout import LAYOUTS
     from mainspan.settings import setting
 
     p = build_parser()

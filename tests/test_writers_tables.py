@@ -71,7 +71,7 @@ def test_missing_folder_is_one_line_error(tmp_path):
 def test_writers_on_layout_read_from_gpkg(tmp_path, system):
     """A Layout read back with read_layout is all the writers need."""
     pytest.importorskip("pyogrio")
-    from mainspan.layout import read_layout
+    from mainspan.pipeline.layout import read_layout
     from mainspan.report.html import write_report
     from mainspan.writers.dxf import write_dxf
     from mainspan.writers.landxml import write_landxml

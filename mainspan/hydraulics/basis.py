@@ -67,7 +67,7 @@ import numba
 import numpy as np
 
 from ..errors import InputError
-from ..network import accumulate
+from ..graph.network import accumulate
 
 __all__ = ["BASES", "PEAKING_METHODS", "BasisFlows", "harmon_peaking_factor",
            "babbitt_peaking_factor", "rational_flow_m3ps", "parse_idf", "idf_intensity_mm_per_h",
@@ -270,7 +270,7 @@ def times_of_concentration_min(net, has_catchment, inlet_time_min, travel_min):
 
     Examples
     --------
-    >>> from mainspan.network import rooted_network
+    >>> from mainspan.graph.network import rooted_network
     >>> net = rooted_network(3, [0, 1], [1, 2], roots=[0])
     >>> times_of_concentration_min(net, [False, True, True], 10.0, [2.0, 3.0])[1].tolist()
     [13.0, 10.0]
@@ -325,7 +325,7 @@ def sanitary_flows(net, *, demand_lps, population=None, per_capita_lpd=380.0, pe
 
     Examples
     --------
-    >>> from mainspan.network import rooted_network
+    >>> from mainspan.graph.network import rooted_network
     >>> net = rooted_network(2, [0], [1], roots=[0])
     >>> f = sanitary_flows(net, demand_lps=[0.0, 0.0], population=[0, 10000], peaking="harmon")
     >>> round(float(f.average_flow_lps[0]), 2), round(float(f.peaking[0]), 3)
@@ -378,7 +378,7 @@ def storm_flows(net, *, area_ha, runoff_c, length_m, idf, inlet_time_min=10.0, v
 
     Examples
     --------
-    >>> from mainspan.network import rooted_network
+    >>> from mainspan.graph.network import rooted_network
     >>> net = rooted_network(2, [0], [1], roots=[0])
     >>> f = storm_flows(net, area_ha=[0, 2.0], runoff_c=[0, 0.5], length_m=[100.0],
     ...                 idf=((5, 80.0), (10, 50.0)))

@@ -57,8 +57,8 @@ from statistics import NormalDist
 import numpy as np
 
 from ..errors import InputError
-from ..network import FLOW_FROM_TO, accumulate, clement_flow_lps, design_flow_lps, rooted_network
-from ..prices import PriceTable, default_prices
+from ..graph.network import FLOW_FROM_TO, accumulate, clement_flow_lps, design_flow_lps, rooted_network
+from .prices import PriceTable, default_prices
 from .catalog import PipeCatalog, default_catalog
 from .friction import water_kinematic_viscosity_m2ps
 from .gravity import MIN_SLOPE_TABLE_PCT
@@ -99,7 +99,7 @@ class DesignSettings:
     prices : PriceTable or None, default=None
         Unit prices for trenches (excavation by depth band, shoring, bedding,
         reinstatement), fittings, structures, pump stations and energy; None:
-        :func:`mainspan.prices.default_prices` (invented placeholders).  Pipe
+        :func:`mainspan.hydraulics.prices.default_prices` (invented placeholders).  Pipe
         supply and lay stays in the catalog.
     trench_side_clearance_m : float, default=0.3
         Working space each side of the pipe (common practice).
@@ -212,7 +212,7 @@ class DesignSettings:
         ``peaking_factor``, 1 by default); ``clement`` -- on-demand
         irrigation, the demand of each site is its hydrant's nominal
         discharge and each link carries Clément's first formula over the
-        hydrants downstream (:func:`mainspan.network.clement_flow_lps`);
+        hydrants downstream (:func:`mainspan.graph.network.clement_flow_lps`);
         ``peaking`` -- water supply, the accumulated demand × a
         ``peaking_factor`` that must then be > 1.
     operating_probability : float or None, default=None
@@ -245,7 +245,7 @@ class DesignSettings:
         trench reinstatement of each link is priced by the length-weighted
         mean of the price table's rates for the classes it crosses (codes
         not listed and nodata: the ``default`` class).  Read by
-        :func:`mainspan.layout.plan_layout`; ``design_network`` takes the
+        :func:`mainspan.pipeline.layout.plan_layout`; ``design_network`` takes the
         crossings as ``surface_share``.
 
     Gravity design basis (see :mod:`mainspan.hydraulics.basis`)

@@ -40,7 +40,7 @@ Examples
 A V-shaped main (ground 10 m, 2 m, 10 m) and a hump (2 m, 10 m, 2 m):
 
 >>> import numpy as np
->>> from mainspan.network import rooted_network
+>>> from mainspan.graph.network import rooted_network
 >>> net = rooted_network(3, [0, 1], [1, 2], roots=[0])
 >>> xy = np.array([[0.0, 0.0], [100.0, 0.0], [200.0, 0.0]])
 >>> off, st = np.array([0, 2, 4]), np.array([0.0, 100.0, 0.0, 100.0])

@@ -670,7 +670,7 @@ def walk_inverts(net, ground_m, profile_offsets, station_up_m, profile_ground_m,
     below_invert_m : float or ndarray, shape (P,)
         Wall and bedding under the invert (trench bottom = invert − this).
     excavation_band_to_m, excavation_per_m3, shoring_per_m2, shoring_depth_m, manhole_base, manhole_per_m
-        Prices for choosing grade breaks (see :class:`mainspan.prices.PriceTable`).
+        Prices for choosing grade breaks (see :class:`mainspan.hydraulics.prices.PriceTable`).
     lift_fixed : float or None
         Fixed price of a lift station; None: no lift stations.
     lift_per_kw : float

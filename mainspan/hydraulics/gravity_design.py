@@ -53,7 +53,7 @@ from typing import NamedTuple
 import numpy as np
 
 from ..errors import InputError
-from ..network import FLOW_TO_FROM
+from ..graph.network import FLOW_TO_FROM
 from .catalog import default_gravity_catalog
 from .gravity import depth_ratio_for_flow, full_pipe, min_slope, part_full_section, walk_inverts
 
@@ -116,7 +116,7 @@ def _price_table(s):
     get = getattr(s, "price_table", None)
     if callable(get):
         return get()
-    from ..prices import default_prices
+    from .prices import default_prices
 
     return s.prices if getattr(s, "prices", None) is not None else default_prices()
 

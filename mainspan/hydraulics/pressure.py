@@ -13,7 +13,7 @@ from typing import NamedTuple
 
 import numpy as np
 
-from ..network import RootedNetwork, cost_to_root
+from ..graph.network import RootedNetwork, cost_to_root
 from .catalog import PipeCatalog
 from .friction import darcy_headloss_m, hazen_williams_headloss_m
 
@@ -146,7 +146,7 @@ def hydraulic_grade(net: RootedNetwork, headloss_m, ground_m, *, source_head_m=N
 
     Examples
     --------
-    >>> from mainspan.network import rooted_network
+    >>> from mainspan.graph.network import rooted_network
     >>> net = rooted_network(3, [0, 1], [1, 2], roots=[0])
     >>> hgl, src = hydraulic_grade(net, [1.0, 2.0], [10.0, 12.0, 5.0], min_pressure_m=14.0)
     >>> hgl.tolist(), src.tolist()

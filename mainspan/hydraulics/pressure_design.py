@@ -36,7 +36,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..errors import InputError
-from ..network import FLOW_FROM_TO, cost_to_root
+from ..graph.network import FLOW_FROM_TO, cost_to_root
 from .catalog import default_catalog, pipe_wall_mm
 from .friction import water_kinematic_viscosity_m2ps
 from .pressure import hydraulic_grade, pipe_headloss_m, size_pressure

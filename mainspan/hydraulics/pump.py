@@ -52,7 +52,7 @@ def pump_duty(flow_lps, source_hgl_m, sump_m, prices, *, efficiency=0.75):
 
     Examples
     --------
-    >>> from mainspan.prices import default_prices
+    >>> from mainspan.hydraulics.prices import default_prices
     >>> d = pump_duty([89.75], [307.0], [210.1], default_prices())
     >>> round(float(d["hydraulic_kw"][0]), 1), round(float(d["shaft_kw"][0]), 1)
     (85.3, 113.7)

@@ -816,7 +816,7 @@ def least_cost_tree(net, loss_m, cost, admissible, req_head_m, *, root_head_m=No
     one (loss 3 m, cost 4) per link; 4 m of head to spend: one link large and
     the other small (or any mix losing 4 m) at cost 10 + 4 = 14.
 
-    >>> from mainspan.network import rooted_network
+    >>> from mainspan.graph.network import rooted_network
     >>> net = rooted_network(3, [0, 1], [1, 2], roots=[0])
     >>> loss = np.array([[1.0, 3.0], [1.0, 3.0]]); cost = np.array([[10.0, 4.0], [10.0, 4.0]])
     >>> r = least_cost_tree(net, loss, cost, np.ones((2, 2), bool), np.array([0.0, 0.0, 0.0]), root_head_m=4.0)
@@ -873,7 +873,7 @@ def _prune_hulls(hoff, hp, hh, hc, w_link):
 
 def _least_head(net, hoff, hh, req):
     """Least head at each root meeting every requirement with the least-loss pipes."""
-    from ..network import cost_to_root
+    from ..graph.network import cost_to_root
 
     least = hh[hoff[:-1]]
     need = np.full(net.n_nodes, -np.inf)

@@ -1,1 +1,1 @@
-"""The review report and its plots: each takes a :class:`mainspan.layout.Layout`."""
+"""The review report and its plots: each takes a :class:`mainspan.pipeline.layout.Layout`."""

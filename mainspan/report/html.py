@@ -171,7 +171,7 @@ def _summary(layout):
     for key, label in (("design:total_cost", "capital cost"), ("design:energy_cost_pv", "energy cost (present value)"),
                        ("design:whole_life_cost", "whole-life cost"), ("design:pump_duty", "pump duty"),
                        ("design:fittings", "fittings"), ("design:prices", "prices")):
-        if info.get(key):           # pump, fittings and prices (mainspan.prices): placeholders are flagged
+        if info.get(key):           # pump, fittings and prices (mainspan.hydraulics.prices): placeholders are flagged
             v = info[key]
             try:
                 v = f"{float(v):,.2f}"
@@ -325,7 +325,7 @@ def write_report(layout, path, *, overwrite=False, title=None, extra_sections=()
 
     Parameters
     ----------
-    layout : mainspan.layout.Layout
+    layout : mainspan.pipeline.layout.Layout
     path : str or os.PathLike
         Target ``.html`` file.
     overwrite : bool, default False

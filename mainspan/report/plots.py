@@ -175,7 +175,7 @@ def long_section(layout, *, path=None, to_node=None, longest=True, figsize=(11.0
 
     Parameters
     ----------
-    layout : mainspan.layout.Layout
+    layout : mainspan.pipeline.layout.Layout
     path : sequence of int, optional
         Node indices down the tree (each the child of the one before), e.g. from
         a root to a chosen node.
@@ -419,7 +419,7 @@ def plan_map(layout, *, background=None, figsize=None, title=None):
 
     Parameters
     ----------
-    layout : mainspan.layout.Layout
+    layout : mainspan.pipeline.layout.Layout
     background : {None, "terrain", "land_cost", "none"}, default None
         ``None`` uses the terrain (as a hillshade) when ``run_info["terrain"]``
         names a readable raster, else the land-cost raster, else nothing.

@@ -27,7 +27,7 @@ def compare_cli(args):
     ``[stability]`` section.  Returns 0; bad input raises InputError or
     DataFileError (exit code 2 in the CLI).
     """
-    from ..project import load_project
+    from ..settings.project import load_project
     from ..writers.gpkg import check_layers_free
 
     proj = load_project(args.project)
@@ -40,7 +40,7 @@ def compare_cli(args):
     gpkg = args.out or (_suffixed(out["gpkg"], "_scenarios") if out.get("gpkg") else None)
     rep = args.report or (_suffixed(out["report"], "_scenarios") if out.get("report") else None)
     # output safety (mainspan.safeio): same-file, project-folder and overwrite rules first
-    from ..preflight import preflight_compare
+    from ..pipeline.preflight import preflight_compare
     overwrite, rep_overwrite = preflight_compare(args, proj, gpkg, rep)
     if gpkg:
         check_layers_free(gpkg, layer_names(["base", *proj.scenarios]), overwrite=overwrite)

@@ -31,7 +31,7 @@ class _Workbench:
 
     # sites ---------------------------------------------------------------
     def get_sites(self, path, read_kw):
-        from ..sites import read_sites
+        from ..sites.read import read_sites
 
         k = _key(path, read_kw)
         if k not in self.sites:
@@ -42,7 +42,7 @@ class _Workbench:
 
     # candidates ----------------------------------------------------------
     def get_candidates(self, sites_key, sites, plan):
-        from ..candidates import build_candidates
+        from ..graph.candidates import build_candidates
 
         opts = dict(method=plan.get("candidates", "delaunay"), k=plan.get("k", 8),
                     max_link_m=plan.get("max_link_m"),
@@ -57,7 +57,7 @@ class _Workbench:
 
     # rasters -------------------------------------------------------------
     def surface(self, path, *, crs, raster_crs, name):
-        from ..surfaces import open_surface
+        from ..ground.surfaces import open_surface
 
         k = _key(os.fspath(path), crs.to_wkt(), raster_crs, name)
         if k not in self.surfaces:
@@ -68,7 +68,7 @@ class _Workbench:
 
     def terrain_parts(self, edge_key, xy, edges, sites, plan, weights):
         """Terrain components of *edges* (priced once per terrain setting)."""
-        from ..costs import CostWeights, price_links
+        from ..ground.costs import CostWeights, price_links
 
         terrain = plan.get("terrain")
         opts = dict(terrain=None if terrain is None else os.fspath(terrain),
@@ -92,7 +92,7 @@ class _Workbench:
 
     def land_parts(self, edge_key, xy, edges, sites, plan):
         """Land-cost components of *edges* (priced once per land-cost setting)."""
-        from ..costs import CostWeights, price_links
+        from ..ground.costs import CostWeights, price_links
 
         land = plan.get("land_cost")
         named = isinstance(land, dict)
@@ -132,7 +132,7 @@ class _Workbench:
 
 # ------------------------------------------------------------------------------ layouts
 def _weights(plan):
-    from ..costs import OPTION_NAMES, CostWeights
+    from ..ground.costs import OPTION_NAMES, CostWeights
 
     w = plan.get("weights")
     w = CostWeights() if w is None else (w if isinstance(w, CostWeights) else CostWeights(**w))
@@ -145,7 +145,7 @@ def _weights(plan):
 
 def _node_elevations(bench, sites_key, sites, plan):
     """Node elevations as plan_layout sets them (DEM, or the sites' Z when asked)."""
-    from ..layout import site_elevations
+    from ..pipeline.layout import site_elevations
 
     dem = bench.elevations(sites_key, sites, plan) if plan.get("terrain") is not None else None
     return site_elevations(sites, dem, use_site_z=plan.get("use_site_z", False))
@@ -154,7 +154,7 @@ def _node_elevations(bench, sites_key, sites, plan):
 def _grow(sites, edges, costs, elev, root_idx, plan, *, certify=True, node_order=None,
           terrain_surface=None):
     """Tree over the passable candidates: Prim (+ certificate) or the gravity arborescence."""
-    from ..layout import grow_tree
+    from ..pipeline.layout import grow_tree
 
     return grow_tree(sites, edges, costs, elev, root_idx, layout=plan.get("layout", "tree"),
                      allow_forest=plan.get("allow_forest", False), design=plan.get("design"),
@@ -171,11 +171,11 @@ def _tree_links(tree):
 
 def _assemble(bench, sites, cands, costs, elev, plan, *, name, description):
     """A Layout from shared stages, assembled exactly as :func:`plan_layout` does."""
-    from ..layout import assemble_layout
+    from ..pipeline.layout import assemble_layout
     from ..settings import run_info_params
 
     system, layout_kind = plan.get("system"), plan.get("layout", "tree")
-    from ..layout import LAYOUTS
+    from ..pipeline.layout import LAYOUTS
     if layout_kind not in LAYOUTS:
         raise InputError(f"[tree] layout: must be one of {', '.join(LAYOUTS)}, "
                          f"got {layout_kind!r}")
@@ -229,7 +229,7 @@ def run_scenarios(project, *, names=None, progress=None, stability_runs=0, pertu
     Parameters
     ----------
     project : Project or path
-        From :func:`mainspan.project.load_project`, or the TOML path.
+        From :func:`mainspan.settings.project.load_project`, or the TOML path.
     names : sequence of str, optional
         Scenarios to run (default: all); the base always runs first.
     progress : callable, optional
@@ -249,7 +249,7 @@ def run_scenarios(project, *, names=None, progress=None, stability_runs=0, pertu
     InputError
         An unknown scenario name, bad settings in any scenario.
     """
-    from ..project import Project, load_project
+    from ..settings.project import Project, load_project
 
     if not isinstance(project, Project):
         project = load_project(project)

@@ -21,7 +21,7 @@ _TERRAIN_COLS = ("length_m", "surface_length_m", "climb_m", "descent_m", "max_sl
 def combine_costs(terrain, land, weights, *, land_factor=None):
     """Combine priced terrain and land components into link totals with *weights*.
 
-    The cost model of :func:`mainspan.costs.price_links` is applied term by
+    The cost model of :func:`mainspan.ground.costs.price_links` is applied term by
     term, in the same order, so the totals equal a direct ``price_links`` call
     to the last bit::
 
@@ -49,13 +49,13 @@ def combine_costs(terrain, land, weights, *, land_factor=None):
     Examples
     --------
     >>> import numpy as np
-    >>> from mainspan.costs import CostWeights, price_links
+    >>> from mainspan.ground.costs import CostWeights, price_links
     >>> xy, e = np.array([[0.0, 0.0], [3.0, 4.0]]), np.array([[0, 1]])
     >>> t = price_links(xy, e, working_crs="EPSG:32633")
     >>> combine_costs(t, t, CostWeights(length=2.0, fixed=1.0)).total.tolist()
     [11.0]
     """
-    from ..costs import BASE_COMPONENTS, LinkCosts
+    from ..ground.costs import BASE_COMPONENTS, LinkCosts
 
     w = weights
     tc, lc = terrain.components, land.components

@@ -7,12 +7,12 @@ unit, default, bounds or choices and help text.  From this one list come
   dashes; a section's primary key takes the section's name: ``--sites``,
   ``--crs``, ``--candidates``, ``--output``), with the older spellings kept as
   hidden aliases;
-* the project-file keys and their checks (:mod:`mainspan.project`);
+* the project-file keys and their checks (:mod:`mainspan.settings.project`);
 * the ``run_info`` entries that record the settings of a run;
 * the ``--help`` text, which lists every design key with its unit and default.
 
 The ``costs`` and ``design`` sections are derived from the
-:class:`~mainspan.costs.CostWeights` and
+:class:`~mainspan.ground.costs.CostWeights` and
 :class:`~mainspan.hydraulics.DesignSettings` dataclass fields: type from the
 annotation, default from the field, help (and unit where the name does not
 carry one) from the class's numpydoc docstring.  A setting added there

@@ -246,14 +246,14 @@ def _cross_rules(d, where):
                                 f"{code}={cost}", "write e.g. 3 = 250.0")
     method = _get(d, "candidates", "method")
     if method is not None:
-        from ..candidates import CANDIDATE_BUILDERS
+        from ..graph.candidates import CANDIDATE_BUILDERS
         for part in str(method).split("+"):
             CANDIDATE_BUILDERS.get(part.strip())     # names the option and the nearest name
 
 
 def _build_objects(d, where):
     """Build the cost weights and design settings now, so their own checks run up front."""
-    from ..costs import CostWeights
+    from ..ground.costs import CostWeights
 
     if d.get("costs"):
         try:
@@ -297,10 +297,10 @@ def design_settings(design, system):
     if cat is not None:
         d["gravity_catalog" if system == "gravity" else "pressure_catalog"] = read_catalog(cat)
     if isinstance(d.get("prices"), (str, os.PathLike)):
-        from ..prices import read_prices
+        from ..hydraulics.prices import read_prices
         d["prices"] = read_prices(d["prices"])
     elif isinstance(d.get("prices"), dict):
-        from ..prices import prices_from_mapping
+        from ..hydraulics.prices import prices_from_mapping
         d["prices"] = prices_from_mapping(d["prices"])
     try:
         return DesignSettings(**d)

@@ -26,7 +26,7 @@ def run_info_params(kw: dict, *, candidates_label=None) -> dict:
     The order and the spelling of each entry are part of the file format:
     layouts written before the schema existed read the same.
     """
-    from ..costs import CostWeights
+    from ..ground.costs import CostWeights
 
     terrain = kw.get("terrain")
     land = kw.get("land_cost")

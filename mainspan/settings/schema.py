@@ -32,7 +32,7 @@ SECTIONS = {
 }
 
 #: ``tree``: Prim's tree of link costs; ``gravity``: minimum arborescence towards the
-#: outlet; ``whole-cost``: the tree of least whole-life cost (:mod:`mainspan.wholecost`).
+#: outlet; ``whole-cost``: the tree of least whole-life cost (:mod:`mainspan.graph.wholecost`).
 LAYOUTS = ("tree", "gravity", "whole-cost")
 
 KINDS = ("text", "path", "number", "integer", "bool", "list", "table", "value")
@@ -205,8 +205,8 @@ STATIC_SETTINGS = (
       choices=("pressure", "gravity"), run_info="system", api="system"),
     S("design", "catalog", "path", None, "pipe catalog CSV of the system's pipes",
       run_info="design_settings", api="design", metavar="CSV"),
-    # prices: the price table itself (mainspan.prices); tables, not options ----
-    *(S("prices", k, kind, None, f"price table item {k!r} (see mainspan.prices)", flag="",
+    # prices: the price table itself (mainspan.hydraulics.prices); tables, not options ----
+    *(S("prices", k, kind, None, f"price table item {k!r} (see mainspan.hydraulics.prices)", flag="",
         run_info="design_settings")
       for k, kind in (("placeholder", "bool"), ("excavation", "table"), ("shoring", "table"),
                       ("bedding", "number"), ("reinstatement", "table"), ("fitting", "table"),
@@ -316,7 +316,7 @@ def _from_dataclass(cls, section, *, run_info, api):
 
 @functools.lru_cache(maxsize=1)
 def _all():
-    from ..costs import CostWeights
+    from ..ground.costs import CostWeights
     from ..hydraulics import DesignSettings
 
     static = list(STATIC_SETTINGS)

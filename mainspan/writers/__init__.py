@@ -1,1 +1,1 @@
-"""Writers: each takes a :class:`mainspan.layout.Layout` and nothing else."""
+"""Writers: each takes a :class:`mainspan.pipeline.layout.Layout` and nothing else."""

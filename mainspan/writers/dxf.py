@@ -170,7 +170,7 @@ def write_dxf(layout, path, *, by="role", polylines="3d", text_height_m=None, or
 
     Parameters
     ----------
-    layout : mainspan.layout.Layout
+    layout : mainspan.pipeline.layout.Layout
     path : str or os.PathLike
         Target ``.dxf`` file; the CRS goes to the same name with ``.prj``.
     by : {"role", "diameter"}, default "role"

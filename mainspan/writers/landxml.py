@@ -108,7 +108,7 @@ def write_landxml(layout, path, *, overwrite=False):
 
     Parameters
     ----------
-    layout : mainspan.layout.Layout
+    layout : mainspan.pipeline.layout.Layout
     path : str or os.PathLike
         Target ``.xml`` file.
     overwrite : bool, default False

@@ -120,7 +120,7 @@ def write_links_csv(layout, path, *, overwrite=False):
 
     Parameters
     ----------
-    layout : mainspan.layout.Layout
+    layout : mainspan.pipeline.layout.Layout
     path : str or os.PathLike
         Target ``.csv`` file.
     overwrite : bool, default False
@@ -146,7 +146,7 @@ def write_quantities_csv(layout, path, *, overwrite=False):
 
     Parameters
     ----------
-    layout : mainspan.layout.Layout
+    layout : mainspan.pipeline.layout.Layout
     path : str or os.PathLike
     overwrite : bool, default False
 

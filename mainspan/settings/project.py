@@ -17,7 +17,7 @@ Layout of a project file (all sections optional except ``[sites]``)::
     [tree]         roots, allow_forest, use_site_z, layout
     [design]       system, catalog (pipe catalog CSV), prices (price table CSV or TOML),
                    and any design setting (see mainspan.hydraulics.DesignSettings)
-    [prices]       the price table itself (see mainspan.prices); a [design] prices
+    [prices]       the price table itself (see mainspan.hydraulics.prices); a [design] prices
                    file wins over it
     [output]       gpkg, overwrite, report, dxf, landxml, links_csv, quantities_csv
     [scenarios.NAME]  any of the sections above, overriding the base for that scenario;
@@ -32,8 +32,8 @@ import os
 import tomllib
 from dataclasses import dataclass, field
 
-from .errors import DataFileError, InputError
-from .settings import SECTIONS, PlanSettings, check_value, setting, unknown_key
+from ..errors import DataFileError, InputError
+from . import SECTIONS, PlanSettings, check_value, setting, unknown_key
 
 __all__ = ["Project", "load_project", "plan_kwargs", "check_design_keys", "SCHEMA"]
 
@@ -44,7 +44,7 @@ _STABILITY = {"runs": "integer", "perturb_pct": "number", "seed": "integer"}
 
 def _schema():
     """``section -> {key: Setting or kind}`` of a project file."""
-    from .settings import SECTIONS, Setting, all_settings
+    from . import SECTIONS, Setting, all_settings
 
     s = {sec: {x.key: x for x in all_settings(sec)} for sec in SECTIONS}
     s["scenarios"] = "table"
@@ -120,7 +120,7 @@ def _validate_sections(doc, where, schema, *, allow_scenarios=True):
 
 def _check_output_extensions(d, where):
     """Each [output] key accepts only its own kind of file (see mainspan.safeio.EXTENSIONS)."""
-    from .safeio import EXTENSIONS
+    from ..safeio import EXTENSIONS
 
     for key, val in (d.get("output") or {}).items():
         if key in EXTENSIONS and isinstance(val, str) and not val.lower().endswith(EXTENSIONS[key]):
@@ -190,7 +190,7 @@ def load_project(path) -> Project:
     _check_output_extensions(base, f"project {path!r}")
     base = _resolve_paths(base, root)
     if "prices" in base:        # check the table now, while its lines can be named
-        from .prices import prices_from_mapping
+        from ..hydraulics.prices import prices_from_mapping
         with open(path, encoding="utf-8", errors="replace") as f:
             prices_from_mapping(base["prices"], where=f"project {path} [prices]", text=f.read())
     scen = {}

@@ -31,7 +31,7 @@ from dataclasses import dataclass
 import numba
 import numpy as np
 
-from .errors import InputError
+from ..errors import InputError
 
 __all__ = [
     "RootedNetwork",

@@ -17,7 +17,7 @@ _INPUT_LABELS = {("sites", "path"): "sites", ("rasters", "terrain"): "terrain",
 def inputs_of(settings, proj=None):
     """(label, path) of every file a run with *settings* reads (every non-output path key
     of the settings schema)."""
-    from .settings import all_settings
+    from ..settings import all_settings
 
     out = []
     if proj is not None:
@@ -38,7 +38,7 @@ def inputs_of(settings, proj=None):
 
 def _output_specs(a, proj, out, items):
     """OutputSpecs for (option value, project key, kind) triples; the option wins."""
-    from .safeio import OutputSpec
+    from ..safeio import OutputSpec
 
     specs = []
     for opt_val, opt_name, key, kind in items:
@@ -52,7 +52,7 @@ def _output_specs(a, proj, out, items):
 
 def preflight_outputs(a, proj, settings_list, items):
     """Run :func:`mainspan.safeio.preflight` for a command; returns the checked OutputSpecs."""
-    from .safeio import preflight
+    from ..safeio import preflight
 
     out = (proj.base.get("output", {}) if proj is not None else {})
     specs = _output_specs(a, proj, out, items)
@@ -67,7 +67,7 @@ def preflight_outputs(a, proj, settings_list, items):
 
 def preflight_compare(a, proj, gpkg, rep):
     """Output checks of ``mainspan compare``; returns (gpkg overwrite, report overwrite)."""
-    from .safeio import OutputSpec, preflight
+    from ..safeio import OutputSpec, preflight
 
     out = proj.base.get("output", {})
     specs = []

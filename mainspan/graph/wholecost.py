@@ -17,7 +17,7 @@ The search
    *v* joins the growing tree from *u* with the key ``α·d(u) + w(u, v)``, where
    ``d(u)`` is the link-cost path length from the root to *u*.  α = 0 is Prim's
    tree, α = 1 the shortest-path tree (Dijkstra); ties are broken by
-   ``(key, lower node, higher node, link index)``, as in :mod:`mainspan.spanning`.
+   ``(key, lower node, higher node, link index)``, as in :mod:`mainspan.graph.spanning`.
    Each start is designed in full; the best (fewest failing design checks, then
    lowest whole-life cost, then lowest α) is kept.
 2. **Link exchange.**  A move adds a candidate link (a, b) not in the tree and
@@ -68,7 +68,7 @@ from dataclasses import dataclass, field
 import numba
 import numpy as np
 
-from .errors import InputError
+from ..errors import InputError
 from .spanning import Tree
 
 __all__ = ["WholeCostSettings", "tradeoff_tree", "tree_from_parents", "exchange_search",
@@ -260,7 +260,7 @@ def _arcs(n, e, w):
 
 
 def tree_from_parents(parent, parent_edge, roots, weights):
-    """A :class:`~mainspan.spanning.Tree` from parent arrays (order: breadth-first by index).
+    """A :class:`~mainspan.graph.spanning.Tree` from parent arrays (order: breadth-first by index).
 
     Parameters
     ----------
@@ -299,7 +299,7 @@ def tradeoff_tree(n_nodes, edges, weights, alpha, *, roots=(0,), allow_forest=Fa
         roots; values between trade total link cost against path cost.
     roots : sequence of int, default (0,)
     allow_forest : bool, default False
-        As in :func:`mainspan.spanning.prim_tree`: unreached parts get their
+        As in :func:`mainspan.graph.spanning.prim_tree`: unreached parts get their
         lowest-index node as an extra root instead of raising.
 
     Returns
@@ -391,10 +391,10 @@ class RuleEstimate:
     def from_design(cls, settings, *, demand_lps, elevation_m, length_m, land_cost=None,
                     min_pressure_m=None, head_price=0.0):
         """The rule-sizing estimate for pressure mains under :class:`DesignSettings`."""
-        from .hydraulics import DesignSettings
-        from .hydraulics.catalog import default_catalog
-        from .hydraulics.friction import water_kinematic_viscosity_m2ps
-        from .hydraulics.pressure import pipe_headloss_m
+        from ..hydraulics import DesignSettings
+        from ..hydraulics.catalog import default_catalog
+        from ..hydraulics.friction import water_kinematic_viscosity_m2ps
+        from ..hydraulics.pressure import pipe_headloss_m
 
         s = DesignSettings() if settings is None else settings
         cat = s.pressure_catalog if s.pressure_catalog is not None else default_catalog()
@@ -897,7 +897,7 @@ def exchange_search(n, edges, weights, start, evaluate, est, *, settings=None,
 class DesignPricer:
     """Price a tree over the candidates with the full design stage.
 
-    Links are handed over exactly as :func:`mainspan.layout.assemble_layout`
+    Links are handed over exactly as :func:`mainspan.pipeline.layout.assemble_layout`
     hands them (grow order, oriented from the root, ground profiles sampled
     from the parent end), so the price of the chosen tree is the price of the
     layout written.
@@ -932,7 +932,7 @@ class DesignPricer:
         return child, tree.parent[child], tree.parent_edge[child]
 
     def __call__(self, tree):
-        from .hydraulics import design_network
+        from ..hydraulics import design_network
 
         child, par, eidx = self.links(tree)
         kw = dict(self.kw)
@@ -1040,7 +1040,7 @@ def whole_cost_tree(n, edges, weights, roots, pricer, est, *, settings=None, pri
 # ------------------------------------------------------------------------------ pipeline stage
 @dataclass(frozen=True, eq=False)
 class WholeCostTree(Tree):
-    """A :class:`~mainspan.spanning.Tree` with the record of the search that chose it.
+    """A :class:`~mainspan.graph.spanning.Tree` with the record of the search that chose it.
 
     ``search`` holds what :func:`whole_cost_tree` returns as ``info``, plus
     ``n_candidates_searched``; ``run_info`` reports it.
@@ -1083,8 +1083,8 @@ def grow_whole_cost(sites, edges, costs, elev, root_idx, prim_sub, keep, *, desi
     Tree over the passable subset, with a ``search`` dict (see
     :func:`whole_cost_tree`, plus ``n_moves`` and ``prim_tree``).
     """
-    from .hydraulics.basis import basis_fields as _basis_fields
-    from .settings import design_settings as _design_settings
+    from ..hydraulics.basis import basis_fields as _basis_fields
+    from ..settings import design_settings as _design_settings
 
     if system != "pressure":
         raise InputError("option --layout whole-cost sizes pressure mains to price each tree; "

@@ -18,18 +18,18 @@ from dataclasses import dataclass, field
 import numpy as np
 import pyproj
 
-from ._version import __version__
-from .errors import CertificateError, DisconnectedError, InputError
-from .settings import design_settings as _design_settings
-from .settings import run_info_params
+from .._version import __version__
+from ..errors import CertificateError, DisconnectedError, InputError
+from ..settings import design_settings as _design_settings
+from ..settings import run_info_params
 
 __all__ = ["Layout", "Profiles", "plan_layout", "read_layout", "file_sha256", "site_elevations",
            "grow_tree", "assemble_layout", "LAYOUTS"]
 
 # --- whole11: the layout kinds, one constant for plan_layout, the CLI and scenarios ---
 #: ``tree``: Prim's tree of link costs; ``gravity``: minimum arborescence towards the
-#: outlet; ``whole-cost``: the tree of least whole-life cost (:mod:`mainspan.wholecost`).
-from .settings import LAYOUTS  # noqa: E402 - declared with the settings schema (tree.layout)
+#: outlet; ``whole-cost``: the tree of least whole-life cost (:mod:`mainspan.graph.wholecost`).
+from ..settings import LAYOUTS  # noqa: E402 - declared with the settings schema (tree.layout)
 # --- end whole11 ---
 
 
@@ -188,7 +188,7 @@ class Layout:
         Other layers already in the file are kept; existing layers of the same
         names are refused unless ``overwrite=True``.
         """
-        from .writers.gpkg import write_layers
+        from ..writers.gpkg import write_layers
 
         write_layers(path, self.to_frames(suffix=suffix), overwrite=overwrite)
         return path
@@ -269,7 +269,7 @@ def read_layout(path, *, suffix="") -> Layout:
     """
     import shapely
 
-    from .writers.gpkg import check_one_run, list_layers, read_table
+    from ..writers.gpkg import check_one_run, list_layers, read_table
 
     # refuse layers written by different runs (safeio rules; see writers/gpkg.py)
     check_one_run(path, [f"{b}{suffix}" for b in ("links", "nodes", "run_info", "quantities",
@@ -330,7 +330,7 @@ def _inputs_info(named_paths):
 
 def _path_sums(parent, order, link_of_node, link_cost):
     """Hops and cost from each node to its root (parents come first in *order*)."""
-    from .network import _path_sums as along_paths
+    from ..graph.network import _path_sums as along_paths
 
     order = np.asarray(order, np.int64)
     cost = along_paths(order, parent, link_of_node, np.asarray(link_cost, np.float64))
@@ -368,7 +368,7 @@ def plan_layout(sites, settings=None, *, terrain=None, land_cost=None, cost_expr
     sample_spacing_m : float, optional
         Terrain sampling step (default: half a cell).
     weights : CostWeights or dict, optional
-        Cost weights (see :class:`mainspan.costs.CostWeights`).
+        Cost weights (see :class:`mainspan.ground.costs.CostWeights`).
     candidates : str, default "delaunay"
         Candidate builder name or a union such as ``"delaunay+knn"``.
     k : int, default 8
@@ -392,7 +392,7 @@ def plan_layout(sites, settings=None, *, terrain=None, land_cost=None, cost_expr
         ``"whole-cost"`` (pressure mains) chooses the tree of least whole-life
         cost -- sized pipes, trench, fittings, pump station and energy present
         value -- from Prim's and Prim–Dijkstra trade-off trees improved by link
-        exchange (:mod:`mainspan.wholecost`); Prim's certificate still covers
+        exchange (:mod:`mainspan.graph.wholecost`); Prim's certificate still covers
         Prim's tree of link costs, reported beside it.
     progress : callable, optional
         ``progress(stage, done, total)``.
@@ -400,7 +400,7 @@ def plan_layout(sites, settings=None, *, terrain=None, land_cost=None, cost_expr
         Further ``key: value`` pairs for the ``run_info`` table.
     whole_cost : WholeCostSettings or dict, optional
         Limits of the ``"whole-cost"`` search (start α values, hops, designs
-        per pass, total designs); see :class:`mainspan.wholecost.WholeCostSettings`.
+        per pass, total designs); see :class:`mainspan.graph.wholecost.WholeCostSettings`.
 
     Returns
     -------
@@ -414,10 +414,10 @@ def plan_layout(sites, settings=None, *, terrain=None, land_cost=None, cost_expr
     >>> lay.n_links, round(lay.total("length_m"), 1)
     (3, 300.0)
     """
-    from .candidates import build_candidates
-    from .costs import CostWeights, node_elevations, price_links
-    from .settings import PlanSettings
-    from .sites import Sites, read_sites
+    from ..graph.candidates import build_candidates
+    from ..ground.costs import CostWeights, node_elevations, price_links
+    from ..settings import PlanSettings
+    from ..sites.read import Sites, read_sites
 
     t0 = time.perf_counter()
     given = dict(terrain=terrain, land_cost=land_cost, cost_expression=cost_expression,
@@ -468,7 +468,7 @@ def plan_layout(sites, settings=None, *, terrain=None, land_cost=None, cost_expr
 
     surf = None
     if terrain is not None:
-        from .surfaces import Surface, open_surface
+        from ..ground.surfaces import Surface, open_surface
         surf = terrain if isinstance(terrain, Surface) else open_surface(
             terrain, working_crs=sites.crs, raster_crs=raster_crs)
     say("costs", 0, 1)
@@ -557,14 +557,14 @@ def grow_tree(sites, edges, costs, elev, root_idx, *, layout="tree", allow_fores
     failing certificate raises :class:`CertificateError`); ``"gravity"``:
     the minimum arborescence towards the outlet on direction-dependent costs;
     ``"whole-cost"``: the tree of least whole-life cost found from Prim's tree
-    (whose certificate is returned) by :func:`mainspan.wholecost.grow_whole_cost`
+    (whose certificate is returned) by :func:`mainspan.graph.wholecost.grow_whole_cost`
     with limits ``whole_cost`` (a ``WholeCostSettings`` or dict).
 
     Returns
     -------
     (Tree over candidate indices, Certificate or None, dict or None)
     """
-    from .spanning import certify_tree, prim_tree
+    from ..graph.spanning import certify_tree, prim_tree
 
     passable = np.asarray(costs.passable, bool)
     keep = np.flatnonzero(passable)
@@ -588,7 +588,7 @@ def grow_tree(sites, edges, costs, elev, root_idx, *, layout="tree", allow_fores
                 "tree is not minimum over the candidates; this is a bug, please report it")
     # --- whole11: whole-cost layout, searched from Prim's tree (certificate stays Prim's) ---
     if layout == "whole-cost":
-        from .wholecost import grow_whole_cost
+        from ..graph.wholecost import grow_whole_cost
         tree_k = grow_whole_cost(sites, edges, costs, elev, root_idx, tree_k, keep,
                                  design=design, terrain_surface=terrain_surface,
                                  sample_spacing_m=sample_spacing_m, allow_forest=allow_forest,
@@ -713,7 +713,7 @@ def _run_info(lay, sites, cands, costs, tree, cert, directed, system, params, in
             info[f"design:{k_}"] = str(v)
         info["design_settings"] = _fmt_dataclass(lay.design_settings)
     if getattr(tree, "search", None):                       # whole11
-        from .wholecost import search_run_info
+        from ..graph.wholecost import search_run_info
         info.update(search_run_info(tree.search, lay.design))
     if directed is not None:
         a, b = directed["arborescence_cost"], directed["prim_cost_same_pricing"]
@@ -754,7 +754,7 @@ def _fmt_dataclass(obj):
 
 
 def _scale(sites):
-    from .crs import scale_factor_range
+    from ..sites.crs import scale_factor_range
     try:
         return scale_factor_range(sites.xy, sites.crs)
     except Exception:  # a CRS PROJ cannot give factors for: report NaN, do not fail
@@ -775,7 +775,7 @@ def _surface_share(lay, design):
     path = getattr(design, "surface_raster", None)
     if not path or not lay.n_links:
         return None
-    from .surfaces import open_surface
+    from ..ground.surfaces import open_surface
     surf = open_surface(path, working_crs=lay.crs, name="surface_raster")
     try:
         off, rows, cols, length, _ = surf.traverse(lay.node_xy[lay.link_ends[:, 0]],
@@ -786,7 +786,7 @@ def _surface_share(lay, design):
 
 
 def _design(lay, system, design, tree):
-    from .hydraulics import DesignSettings, design_network
+    from ..hydraulics import DesignSettings, design_network
 
     design = _design_settings(design, system)
     L = lay.n_links
@@ -841,7 +841,7 @@ def _design(lay, system, design, tree):
 
 def _basis_fields(nodes):
     """The sites' design-basis columns (see :func:`mainspan.hydraulics.basis.basis_fields`)."""
-    from .hydraulics.basis import basis_fields
+    from ..hydraulics.basis import basis_fields
 
     return basis_fields(nodes)
 
@@ -852,18 +852,18 @@ def _gravity_tree(sites, edges, keep, w_all, costs, elev, root_idx, design,
 
     The arcs are priced by the trench each flow direction needs and the tree
     is grown, designed and re-priced until it repeats
-    (:func:`mainspan.gravity_layout.depth_aware_tree`); round 0 is the
+    (:func:`mainspan.graph.gravity_layout.depth_aware_tree`); round 0 is the
     earlier layout, priced by extra depth below minimum cover only.
 
-    Returns a :class:`~mainspan.spanning.Tree` over candidate indices and a
+    Returns a :class:`~mainspan.graph.spanning.Tree` over candidate indices and a
     dict with per-node directed link costs, the design cost of the kept tree
     against Prim's tree drained to the same outlet and designed the same
     way, and the rounds (``depth_layout``).
     """
-    # --- gravity layout (mainspan.gravity_layout) ---
-    from .gravity_layout import depth_aware_tree, tree_designer
-    from .network import rooted_network
-    from .spanning import Tree, prim_tree
+    # --- gravity layout (mainspan.graph.gravity_layout) ---
+    from ..graph.gravity_layout import depth_aware_tree, tree_designer
+    from ..graph.network import rooted_network
+    from ..graph.spanning import Tree, prim_tree
 
     if len(root_idx) != 1:
         raise InputError(f"--layout gravity needs exactly one outlet (root), got "

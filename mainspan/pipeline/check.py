@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .errors import DataFileError, InputError
+from ..errors import DataFileError, InputError
 
 __all__ = ["check_inputs", "CheckReport"]
 
@@ -72,7 +72,7 @@ def _raster_info(path, working_crs, xy, raster_crs=None):
 
 
 def check_inputs(settings, *, dry_run=True) -> CheckReport:
-    """Validate the inputs named by merged settings (see :mod:`mainspan.project`).
+    """Validate the inputs named by merged settings (see :mod:`mainspan.settings.project`).
 
     Parameters
     ----------
@@ -86,9 +86,9 @@ def check_inputs(settings, *, dry_run=True) -> CheckReport:
     -------
     CheckReport
     """
-    from .candidates import CANDIDATE_BUILDERS
-    from .project import plan_kwargs
-    from .sites import read_sites
+    from ..graph.candidates import CANDIDATE_BUILDERS
+    from ..settings.project import plan_kwargs
+    from ..sites.read import read_sites
 
     rep = CheckReport()
     path, read_kw, plan_kw, _ = plan_kwargs(settings)
@@ -133,7 +133,7 @@ def check_inputs(settings, *, dry_run=True) -> CheckReport:
             rep.problems.append(f"{(~inside).sum()} site(s) outside raster {name!r} ({p}): "
                                 f"{', '.join(ids[:8])}{' …' if len(ids) > 8 else ''}")
     if plan_kw.get("cost_expression"):
-        from .expression import parse_expression
+        from ..ground.expression import parse_expression
         names = list(lc.keys()) if isinstance(lc, dict) else ["land_cost"]
         parse_expression(plan_kw["cost_expression"], names=names)
     m_est = 3 * sites.n if "delaunay" in str(method) else plan_kw.get("k", 8) * sites.n

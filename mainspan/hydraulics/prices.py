@@ -97,7 +97,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from .errors import DataFileError, InputError
+from ..errors import DataFileError, InputError
 
 __all__ = ["PriceTable", "FITTING_KINDS", "default_prices", "read_prices", "prices_from_mapping",
            "write_prices_csv", "annuity_factor"]
@@ -620,7 +620,7 @@ def prices_from_mapping(table, *, where="[prices]", text=None) -> PriceTable:
     (0.2, True)
     """
     if not isinstance(table, dict):
-        raise InputError(f"{where} must be a table of prices; see mainspan.prices")
+        raise InputError(f"{where} must be a table of prices; see mainspan.hydraulics.prices")
     return _build(_rows_from_mapping(table, where, text), where, default_placeholder=False)
 
 
@@ -650,7 +650,7 @@ def read_prices(path) -> PriceTable:
 
 def write_prices_csv(prices: PriceTable, path, *, overwrite=False):
     """Write *prices* as an editable CSV template (the layout :func:`read_prices` reads)."""
-    from .writers.tables import atomic_write
+    from ..writers.tables import atomic_write
 
     lines = ["# mainspan price table: one price per row. Pipe supply and lay is priced per metre in the pipe",
              "# catalog. Every value below is an INVENTED PLACEHOLDER: replace them with local rates and set",

@@ -43,7 +43,7 @@ import numpy as np
 import pyproj
 
 from .crs import choose_working_crs, parse_crs, to_crs
-from .errors import DataFileError, InputError
+from ..errors import DataFileError, InputError
 
 __all__ = ["Sites", "read_sites", "sites_from_arrays", "ROLES", "COINCIDENT_M"]
 

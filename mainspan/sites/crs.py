@@ -29,7 +29,7 @@ from dataclasses import dataclass
 import numpy as np
 import pyproj
 
-from .errors import InputError
+from ..errors import InputError
 
 __all__ = ["WorkingCRS", "choose_working_crs", "to_crs", "parse_crs", "scale_factor_range",
            "utm_epsg", "MAX_SCALE_ERROR"]

@@ -36,7 +36,7 @@ from typing import NamedTuple
 import numba
 import numpy as np
 
-from .errors import InputError
+from ..errors import InputError
 
 __all__ = ["Arborescence", "DirectedLinks", "min_arborescence", "directional_link_costs",
            "profile_directional_costs"]

@@ -39,7 +39,7 @@ import re
 
 import numpy as np
 
-from .errors import InputError
+from ..errors import InputError
 
 __all__ = ["Expression", "compile_expression", "FUNCTIONS"]
 

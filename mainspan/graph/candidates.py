@@ -34,8 +34,8 @@ from dataclasses import dataclass
 import numba
 import numpy as np
 
-from .errors import InputError
-from .plugins import Registry
+from ..errors import InputError
+from ..plugins import Registry
 
 __all__ = [
     "CANDIDATE_BUILDERS",
@@ -233,7 +233,7 @@ def spatial_order(xy, *, bits=16) -> np.ndarray:
     -------
     order : ndarray of int64, shape (n,)
         A permutation of ``0 .. n-1``; ties (points in one cell) keep their index order.
-        Pass it as ``node_order`` to :func:`mainspan.spanning.prim_tree` for speed.
+        Pass it as ``node_order`` to :func:`mainspan.graph.spanning.prim_tree` for speed.
 
     Examples
     --------

@@ -34,7 +34,7 @@ Arc price (flow from the upstream end ``u`` to the downstream end)
 
 Rounds
 ------
-Round 0 is the earlier layout (:func:`~mainspan.arborescence.profile_directional_costs`:
+Round 0 is the earlier layout (:func:`~mainspan.graph.arborescence.profile_directional_costs`:
 extra depth below minimum cover at one placeholder price).  Each later
 round prices the arcs from the previous round's design (node depths,
 flows), grows the arborescence and designs it.  It stops when a tree
@@ -44,7 +44,7 @@ reports it, else ``total_cost``; ties to the earlier round) is kept, so the
 result is never dearer than round 0 under the design's own pricing.  Same
 input, same rounds, same tree.
 
-Prices come from the design's price table (:mod:`mainspan.prices`; its
+Prices come from the design's price table (:mod:`mainspan.hydraulics.prices`; its
 defaults are placeholders until the user gives theirs).
 """
 
@@ -55,7 +55,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .arborescence import DirectedLinks, min_arborescence, profile_directional_costs, profile_link_arrays
-from .errors import InputError
+from ..errors import InputError
 
 __all__ = ["CarriedDepth", "GravityLayoutRounds", "price_table", "depth_arc_costs",
            "depth_aware_tree", "tree_designer"]
@@ -104,8 +104,8 @@ class GravityLayoutRounds:
 
 
 def _catalog_arrays(settings):
-    from .hydraulics.catalog import default_gravity_catalog
-    from .hydraulics.gravity import min_slope
+    from ..hydraulics.catalog import default_gravity_catalog
+    from ..hydraulics.gravity import min_slope
 
     cat = settings.gravity_catalog if settings.gravity_catalog is not None else default_gravity_catalog()
     keep = np.flatnonzero(cat.nominal_mm >= settings.gravity_min_diameter_mm)
@@ -190,7 +190,7 @@ def depth_arc_costs(edges, base_cost, length_m, profile_offsets, profile_station
     flow_lps : array_like, shape (n,)
         Design flow leaving each node.
     prices : PriceTable, optional
-        Default: the settings' price table (:mod:`mainspan.prices`).
+        Default: the settings' price table (:mod:`mainspan.hydraulics.prices`).
     carry : CarriedDepth, optional
         The previous design, to price the depth an arc hands on downstream
         (see :class:`CarriedDepth`); None prices each link on its own.
@@ -308,7 +308,7 @@ def tree_designer(xy, elevation_m, demand_lps, node_id, edges, length_m, profile
         ``design_fn(parent, arc_link) -> DesignResult``, links in the order of
         ``np.flatnonzero(parent >= 0)``.
     """
-    from .hydraulics import design_network
+    from ..hydraulics import design_network
 
     e = np.asarray(edges, dtype=np.int64).reshape(-1, 2)
     off = np.asarray(profile_offsets, dtype=np.int64)

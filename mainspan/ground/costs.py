@@ -17,7 +17,7 @@ points) into :class:`LinkCosts`: one float64 column per cost component and a
 ``land``
     Exact line integral of the land-cost rasters (cost per metre of main laid
     through the cell) over the plan path -- see
-    :meth:`mainspan.surfaces.Surface.line_integral`.  With several named
+    :meth:`mainspan.ground.surfaces.Surface.line_integral`.  With several named
     rasters the land cost is their sum (one ``land_cost_<name>`` column
     each); with ``cost_expression`` the expression is evaluated per crossed
     cell and then integrated (the rasters it uses must share one grid);
@@ -75,9 +75,9 @@ import numba
 import numpy as np
 import pyproj
 
-from .errors import InputError
+from ..errors import InputError
 from .expression import FUNCTIONS, compile_expression
-from .plugins import Registry
+from ..plugins import Registry
 from .surfaces import Surface, open_surface, working_crs_of
 
 __all__ = [
@@ -105,7 +105,7 @@ _CHUNK_SAMPLES = 1_000_000
 
 
 def _check_term(name, fn):
-    from .plugins import PluginError
+    from ..plugins import PluginError
 
     if not callable(fn):
         raise PluginError(f"cost term {name!r} must be callable as term(ctx) -> dict")
@@ -227,7 +227,7 @@ class CostContext:
 
     Attributes: ``xy`` (n, 2), ``edges`` (m, 2), ``p0``/``p1`` (m, 2) link ends,
     ``length_m`` (m,), ``weights`` (:class:`CostWeights`), ``working_crs``
-    (pyproj CRS), ``terrain`` (:class:`~mainspan.surfaces.Surface` or None),
+    (pyproj CRS), ``terrain`` (:class:`~mainspan.ground.surfaces.Surface` or None),
     ``land`` (dict name -> Surface; the single unnamed raster is called
     ``land_cost``), ``named_land`` (bool: names were given), ``class_tables``
     (dict name -> (codes, costs)), ``expression`` (checked expression or
@@ -563,7 +563,7 @@ def price_links(xy, edges, *, working_crs, terrain=None, land_cost=None, cost_ex
         Land-cost raster(s), cost per metre of main through each cell; a dict
         names them (names are identifiers, usable in ``cost_expression``).
     cost_expression : str, optional
-        Combine the named rasters per cell (see :mod:`mainspan.expression`);
+        Combine the named rasters per cell (see :mod:`mainspan.ground.expression`);
         needs ``land_cost`` as a dict.
     class_costs : dict, optional
         ``{code: cost per m}`` for the single land raster, or

@@ -33,7 +33,7 @@ from dataclasses import dataclass
 import numba
 import numpy as np
 
-from .errors import CertificateError, DisconnectedError, InputError
+from ..errors import CertificateError, DisconnectedError, InputError
 
 __all__ = [
     "Tree",
@@ -571,7 +571,7 @@ def prim_tree(n_nodes, edges, weights, *, roots=(0,), allow_forest=False,
     node_order : array_like of int, shape (n_nodes,), optional
         A permutation of the nodes used as the internal memory layout (for example a
         space-filling-curve order of the coordinates, see
-        :func:`mainspan.candidates.spatial_order`).  It only affects speed: the result is
+        :func:`mainspan.graph.candidates.spatial_order`).  It only affects speed: the result is
         identical with or without it.
 
     Returns

@@ -66,7 +66,7 @@ import numba
 import numpy as np
 import pyproj
 
-from .errors import DataFileError, InputError
+from ..errors import DataFileError, InputError
 
 __all__ = ["Surface", "open_surface", "traverse_grid"]
 
@@ -1009,7 +1009,7 @@ class Surface:
         d = p1 - p0
         length = np.hypot(d[:, 0], d[:, 1])
         # memory estimate before sampling (mainspan.safeio budget): stations, z, work arrays
-        from .safeio import check_memory
+        from ..safeio import check_memory
         check_memory(float(np.sum(np.ceil(length / spacing_m) + 2.0)) * 40.0,
                      what=f"sampling raster {self.path!r} every {spacing_m:g} m along "
                      f"{len(length)} link(s)",

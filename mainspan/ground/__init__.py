@@ -1,0 +1,1 @@
+"""Ground: rasters, link profiles, link costs and cost expressions."""

@@ -1,0 +1,1 @@
+"""Sites: reading point layers and putting them in a metric CRS."""
