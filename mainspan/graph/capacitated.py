@@ -158,7 +158,8 @@ def limit_violations(tree: Tree, edges, demand_lps, limits: Limits, *, site_weig
     ids = [str(v) for v in (node_id if node_id is not None else range(n))]
     is_root = np.zeros(n, bool)
     is_root[np.asarray(tree.roots)] = True
-    sw = np.where(is_root, 0.0, np.ones(n) if site_weight is None else np.asarray(site_weight, float))
+    sw = np.ones(n) if site_weight is None else np.asarray(site_weight, float)
+    sw = np.where(is_root, 0.0, sw)
     dem = np.where(is_root, 0.0, np.asarray(demand_lps, float))
     branch, sites, flow = branch_loads(tree, dem, sw)
     out = []
