@@ -179,7 +179,9 @@ def _run_plan(settings, *, quiet=False):
 
     ps = settings if isinstance(settings, PlanSettings) else PlanSettings.from_sections(settings)
     sites = read_sites(ps.sites_path, **ps.read_kwargs())
-    return plan_layout(sites, ps, progress=_progress(quiet)), ps.output
+    from .execution import engine_from_settings, use     # --workers / --cluster
+    with engine_from_settings(ps.sections.get("execution")) as eng, use(eng):
+        return plan_layout(sites, ps, progress=_progress(quiet)), ps.output
 
 
 # project-file outputs written after the GeoPackage (each checked by preflight first)
@@ -421,6 +423,10 @@ def build_parser():
     cp.add_argument("--allow-outside-project", action="store_true",
                     help="let the project file's [output] paths lie outside its folder")
     cp.add_argument("--quiet", action="store_true", help="no progress on stderr")
+    from .settings import SECTIONS, all_settings     # --workers, --cluster (mainspan.execution)
+    gx = cp.add_argument_group(SECTIONS["execution"])
+    for s in all_settings("execution"):
+        _add_option(gx, s)
     cp.set_defaults(func=cmd_compare)
     return p
 

@@ -9,12 +9,30 @@ from .compute import run_scenarios
 from .output import layer_names, write_scenarios
 from .report import report_sections
 
-__all__ = ["compare_cli"]
+__all__ = ["compare_cli", "execution_settings"]
 
 # ------------------------------------------------------------------------------ CLI
 def _suffixed(path, suffix):
     stem, ext = os.path.splitext(path)
     return f"{stem}{suffix}{ext}"
+
+
+def execution_settings(args, proj) -> dict:
+    """The checked ``[execution]`` settings: the project file's, then the options'."""
+    from ..settings import all_settings, check_settings, parse_text
+
+    merged = dict(proj.base.get("execution", {}) or {})
+    origin = {}
+    for st in all_settings("execution"):
+        v = getattr(args, f"{st.section}__{st.key}", None)
+        if v is not None:
+            where = f"option {st.option}"
+            merged[st.key] = parse_text(st, v, where)
+            origin[st.key] = where
+    where_file = f"project {proj.path!r} [execution]"
+    checked = check_settings({"execution": merged},
+                             lambda sec, key: origin.get(key, f"{where_file} {key}"))
+    return checked["execution"]
 
 
 def compare_cli(args):
@@ -44,9 +62,14 @@ def compare_cli(args):
     overwrite, rep_overwrite = preflight_compare(args, proj, gpkg, rep)
     if gpkg:
         check_layers_free(gpkg, layer_names(["base", *proj.scenarios]), overwrite=overwrite)
+    from ..execution import engine_from_settings
     from ..messages import progress
-    sset = run_scenarios(proj, progress=progress(args.quiet), stability_runs=runs,
-                         perturb_pct=pct, seed=seed)
+    say = progress(args.quiet)
+    with engine_from_settings(execution_settings(args, proj)) as eng:
+        if not eng.local and say is not None:
+            say(f"running on {eng.describe()}", 0, 1)
+        sset = run_scenarios(proj, progress=say, stability_runs=runs, perturb_pct=pct,
+                             seed=seed, engine=eng)
     print(sset.table())
     if gpkg:
         write_scenarios(sset, gpkg, overwrite=overwrite)

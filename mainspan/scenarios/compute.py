@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import os
-import zlib
 
 import numpy as np
 
@@ -11,6 +10,7 @@ from ..errors import DataFileError, InputError
 from .pricing import _key, combine_costs
 from .results import ScenarioResult, ScenarioSet
 from .tables import _link_table, _regret_matrix, _summary
+from .tasks import _weights, stability_task, tree_task
 
 __all__ = ["run_scenarios", "MAX_STABILITY_RUNS"]
 
@@ -131,18 +131,6 @@ class _Workbench:
 
 
 # ------------------------------------------------------------------------------ layouts
-def _weights(plan):
-    from ..ground.costs import OPTION_NAMES, CostWeights
-
-    w = plan.get("weights")
-    w = CostWeights() if w is None else (w if isinstance(w, CostWeights) else CostWeights(**w))
-    if plan.get("terrain") is None and (w.climb or w.descent or w.steep_per_m):
-        opt = next(OPTION_NAMES[k] for k in ("climb", "descent", "steep_per_m") if getattr(w, k))
-        raise InputError(f"{opt} prices the terrain but no terrain raster was given; "
-                         "pass terrain= (--terrain)")
-    return w
-
-
 def _node_elevations(bench, sites_key, sites, plan):
     """Node elevations as plan_layout sets them (DEM, or the sites' Z when asked)."""
     from ..pipeline.layout import site_elevations
@@ -151,71 +139,6 @@ def _node_elevations(bench, sites_key, sites, plan):
     return site_elevations(sites, dem, use_site_z=plan.get("use_site_z", False))
 
 
-def _grow(sites, edges, costs, elev, root_idx, plan, *, certify=True, node_order=None,
-          terrain_surface=None):
-    """Tree over the passable candidates: Prim (+ certificate) or the gravity arborescence."""
-    from ..pipeline.layout import grow_tree
-
-    return grow_tree(sites, edges, costs, elev, root_idx, layout=plan.get("layout", "tree"),
-                     allow_forest=plan.get("allow_forest", False), design=plan.get("design"),
-                     certify=certify, node_order=node_order, terrain_surface=terrain_surface,
-                     sample_spacing_m=plan.get("sample_spacing_m"), system=plan.get("system"))
-
-
-def _tree_links(tree):
-    """Candidate indices of a tree's links, in grow order."""
-    order = np.asarray(tree.order, dtype=np.int64)
-    child = order[tree.parent[order] >= 0]
-    return child, tree.parent[child], tree.parent_edge[child]
-
-
-def _assemble(bench, sites, cands, costs, elev, plan, *, name, description):
-    """A Layout from shared stages, assembled exactly as :func:`plan_layout` does."""
-    from ..pipeline.layout import assemble_layout
-    from ..settings import run_info_params
-
-    system, layout_kind = plan.get("system"), plan.get("layout", "tree")
-    from ..pipeline.layout import LAYOUTS
-    if layout_kind not in LAYOUTS:
-        raise InputError(f"[tree] layout: must be one of {', '.join(LAYOUTS)}, "
-                         f"got {layout_kind!r}")
-    if system not in (None, "pressure", "gravity"):
-        raise InputError(f"[design] system: must be 'pressure' or 'gravity', got {system!r}")
-    roots = plan.get("roots")
-    root_idx = sites.index_of(roots) if roots else sites.default_roots()
-    terrain = plan.get("terrain")
-    surf = None
-    if terrain is not None:
-        surf = bench.surface(terrain, crs=sites.crs, raster_crs=plan.get("raster_crs"),
-                             name="terrain")
-    tree, cert, directed = _grow(sites, cands.edges, costs, elev, root_idx, plan,
-                                 node_order=cands.node_order, terrain_surface=surf)
-    land = plan.get("land_cost")
-    land = land if isinstance(land, dict) else ({} if land is None else {"land_cost": land})
-    params = {"scenario": name, "scenario_description": description,
-              **run_info_params({**plan, "weights": _weights(plan)},
-                                candidates_label=cands.method)}
-    lay = assemble_layout(sites, cands, costs, elev, tree, cert, directed,
-                          terrain_surface=surf, sample_spacing_m=plan.get("sample_spacing_m"),
-                          system=system, design=plan.get("design"), params=params,
-                          inputs=[("sites", sites.path), ("terrain", terrain), *land.items()])
-    return lay, root_idx
-
-
-def _stability(sites, edges, terrain, land, weights, elev, root_idx, plan, *, runs, pct, rng,
-               terrain_surface=None, tick=None):
-    """Share of *runs* perturbed trees holding each candidate link (``tick(done, runs)``)."""
-    count = np.zeros(len(edges), dtype=np.int64)
-    for i in range(runs):
-        f = rng.uniform(1.0 - pct / 100.0, 1.0 + pct / 100.0, len(edges))
-        costs = combine_costs(terrain, land, weights, land_factor=f)
-        tree, _, _ = _grow(sites, edges, costs, elev, root_idx, plan, certify=False,
-                           terrain_surface=terrain_surface)
-        count[_tree_links(tree)[2]] += 1
-        if tick is not None:
-            tick(i + 1, runs)
-    return count / float(runs)
-
 
 #: Most perturbed runs per scenario (--stability): shares are then known to about 0.1 %.
 MAX_STABILITY_RUNS = 1000
@@ -223,7 +146,7 @@ MAX_STABILITY_RUNS = 1000
 
 # ------------------------------------------------------------------------------ run
 def run_scenarios(project, *, names=None, progress=None, stability_runs=0, perturb_pct=10.0,
-                  seed=0):
+                  seed=0, engine=None):
     """Plan the base and the scenarios of a project, sharing work between them.
 
     Parameters
@@ -239,6 +162,10 @@ def run_scenarios(project, *, names=None, progress=None, stability_runs=0, pertu
     perturb_pct : float, default=10.0
         Half-width in percent of the uniform land-cost factor.
     seed : int, default=0
+    engine : mainspan.execution.Engine, optional
+        Where the trees and the stability runs run (one task each); default
+        :func:`mainspan.execution.current` (embedded unless set).  The
+        result is the same, byte for byte, on every engine.
 
     Returns
     -------
@@ -273,18 +200,27 @@ def run_scenarios(project, *, names=None, progress=None, stability_runs=0, pertu
             raise
     say = progress or (lambda *a: None)
     bench = _Workbench(say)
-    results = {}
+    # --- dask18: shared stages here; trees and stability runs as tasks of the engine ---
+    from ..execution import current
+
+    eng = engine if engine is not None else current()
     try:
+        jobs = {}
         for name in order:
             try:
-                results[name] = _run_one(project, name, checked[name], bench, say,
-                                         stability_runs, perturb_pct, seed)
+                jobs[name] = _prepare(project, name, checked[name], bench, say)
             except (InputError, DataFileError) as exc:   # keep the class, name the scenario
                 exc.args = (f"scenario {name!r}: {exc}",) + exc.args[1:]
                 raise
+        results = _grow_scenarios(eng, bench, order, jobs, say)
+        if stability_runs:
+            _stability_runs(eng, bench, order, jobs, results, say, int(stability_runs),
+                            float(perturb_pct), int(seed))
         regret = _regret_matrix(bench, order, results)
     finally:
         bench.close()
+        eng.release()
+    # --- end dask18 ---
     links, links_xy, n_none = _link_table(order, results)
     summary = _summary(order, results, regret, n_none)
     crs = results["base"].layout.crs
@@ -301,7 +237,9 @@ def _checked_settings(project, name):
                                       lambda sec, key: f"{where} [{sec}] {key}")
 
 
-def _run_one(project, name, ps, bench, say, stability_runs, perturb_pct, seed):
+# --- dask18: the task split (mainspan.scenarios.tasks holds the tasks) ---
+def _prepare(project, name, ps, bench, say):
+    """The shared stages of scenario *name* (sites, candidates, link costs, elevations)."""
     settings = ps.sections
     desc = "" if name == "base" else project.scenarios[name].get("description", "")
     path, read_kw, plan = ps.sites_path, ps.read_kwargs(), ps.plan_kwargs()
@@ -312,21 +250,65 @@ def _run_one(project, name, ps, bench, say, stability_runs, perturb_pct, seed):
     land = bench.land_parts(ck, sites.xy, cands.edges, sites, plan)
     costs = combine_costs(terr, land, weights)
     elev = _node_elevations(bench, sk, sites, plan)
-    say(f"tree {name}", 0, 1)
-    lay, root_idx = _assemble(bench, sites, cands, costs, elev, plan, name=name,
-                              description=desc)
-    res = ScenarioResult(name, desc, settings, lay, weights,
-                         keys={"sites": sk, "candidates": ck, "plan": plan})
-    if stability_runs:
-        say(f"stability {name}", 0, stability_runs)
-        rng = np.random.default_rng([int(seed), zlib.crc32(name.encode())])
-        res.stability = _stability(sites, cands.edges, terr, land, weights, elev, root_idx,
-                                   plan, runs=int(stability_runs), pct=float(perturb_pct),
-                                   rng=rng, terrain_surface=None if plan.get("terrain") is None
-                                   else bench.surface(plan["terrain"], crs=sites.crs,
-                                                      raster_crs=plan.get("raster_crs"),
-                                                      name="terrain"),
-                                   tick=lambda d, t: say(f"stability {name}", d, t))
-        res.runs = int(stability_runs)
-        lay.links["stability"] = res.stability[lay.links["candidate_index"]]
-    return res
+    return dict(settings=settings, desc=desc, plan=plan, weights=weights, sk=sk, sites=sites,
+                ck=ck, cands=cands, terr=terr, land=land, costs=costs, elev=elev)
+
+
+def _terrain_for(eng, bench, job):
+    """The terrain raster as a task receives it: open here, or a spec workers open."""
+    from ..execution.worker import surface_spec
+
+    plan, sites = job["plan"], job["sites"]
+    if plan.get("terrain") is None:
+        return None
+    if eng.local:
+        return bench.surface(plan["terrain"], crs=sites.crs, raster_crs=plan.get("raster_crs"),
+                             name="terrain")
+    return surface_spec(plan["terrain"], crs=sites.crs, raster_crs=plan.get("raster_crs"),
+                        name="terrain")
+
+
+def _grow_scenarios(eng, bench, order, jobs, say):
+    """One task per scenario: tree, certificate, design; results in scenario order."""
+    for name in order:
+        say(f"tree {name}", 0, 1)
+    sh = eng.share
+    items = [(name, j["desc"], sh(j["sites"]), sh(j["cands"]), sh(j["costs"]), j["elev"],
+              j["plan"], _terrain_for(eng, bench, j)) for name, j in
+             ((n, jobs[n]) for n in order)]
+    out = eng.map(tree_task, items, stage="trees", say=say)
+    results = {}
+    for name, (lay, root_idx) in zip(order, out):
+        j = jobs[name]
+        # a layout made on a worker carries copies: point it back at the shared objects so
+        # scenarios that share sites or candidates are seen to share them
+        lay.sites, lay.candidates, lay.costs = j["sites"], j["cands"], j["costs"]
+        j["root_idx"] = root_idx
+        results[name] = ScenarioResult(name, j["desc"], j["settings"], lay, j["weights"],
+                                       keys={"sites": j["sk"], "candidates": j["ck"],
+                                             "plan": j["plan"]})
+    return results
+
+
+def _stability_runs(eng, bench, order, jobs, results, say, runs, pct, seed):
+    """One task per perturbed run of every scenario; shares of runs holding each link."""
+    sh = eng.share
+    items = []
+    for name in order:
+        j = jobs[name]
+        common = (sh(j["sites"]), sh(j["cands"].edges), sh(j["terr"]), sh(j["land"]),
+                  j["weights"], sh(j["elev"]), j["root_idx"], j["plan"],
+                  _terrain_for(eng, bench, j))
+        items += [(name, i, seed, pct, *common) for i in range(runs)]
+    stage = "stability" if len(order) == 1 else f"stability ({len(order)} scenarios)"
+    say(stage, 0, len(items))
+    out = eng.map(stability_task, items, stage=stage, say=say)
+    for k, name in enumerate(order):
+        count = np.zeros(len(jobs[name]["cands"].edges), dtype=np.int64)
+        for links in out[k * runs:(k + 1) * runs]:      # in run order, whatever finished first
+            count[links] += 1
+        res = results[name]
+        res.stability = count / float(runs)
+        res.runs = runs
+        res.layout.links["stability"] = res.stability[res.layout.links["candidate_index"]]
+# --- end dask18 ---

@@ -244,6 +244,13 @@ def _cross_rules(d, where):
                 raise bad_value(where("rasters", "class_costs"), "each class cost",
                                 "an integer class code with a cost >= 0 per metre",
                                 f"{code}={cost}", "write e.g. 3 = 250.0")
+    # --- dask18: one execution mode (mainspan.execution) ---
+    if _get(d, "execution", "workers") is not None and _get(d, "execution", "cluster"):
+        raise bad_value(where("execution", "cluster"), "--cluster", "given without --workers",
+                        f"cluster {d['execution']['cluster']} with workers "
+                        f"{d['execution']['workers']}", "--workers N starts a local cluster, "
+                        "--cluster ADDRESS attaches to a running one; give only one")
+    # --- end dask18 ---
     method = _get(d, "candidates", "method")
     if method is not None:
         from ..graph.candidates import CANDIDATE_BUILDERS

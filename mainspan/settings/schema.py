@@ -29,6 +29,7 @@ SECTIONS = {
     "design": "design",
     "prices": "price table (project file only; on the command line use --prices FILE)",
     "output": "output",
+    "execution": "execution (where the work runs; results are the same in every mode)",
 }
 
 #: ``tree``: Prim's tree of link costs; ``gravity``: minimum arborescence towards the
@@ -222,6 +223,16 @@ STATIC_SETTINGS = (
     S("output", "quantities_csv", "path", None, "also write the bill of quantities as CSV",
       metavar="CSV"),
     S("output", "overwrite", "bool", False, "replace existing outputs"),
+    # execution (mainspan.execution): where tasks run; changes no result, so no run_info ------
+    S("execution", "workers", "integer", None, "run tasks on a local Dask cluster of N worker "
+      "processes (default: all in this process)", lo=1, metavar="N"),
+    S("execution", "cluster", "text", None, "run tasks on the Dask scheduler at this address, "
+      "e.g. tcp://10.0.0.5:8786 (inputs must be on storage the workers see)",
+      metavar="ADDRESS"),
+    S("execution", "connect_timeout_s", "number", 5.0, "give up reaching --cluster after this "
+      "long", unit="s", lo=0.0, lo_open=True),
+    S("execution", "chunk_links", "integer", 200000, "link costing of more links than this "
+      "is split into tile-aligned chunks of about this many links, one task each", lo=1000),
 )
 
 # Units by name ending (longest first); names that carry none are listed below.

@@ -1,0 +1,127 @@
+"""The tasks of a scenario run: one tree per scenario, one tree per stability run.
+
+Both are module-level functions of plain data (arrays, settings dicts and
+raster specs), so any :class:`~mainspan.execution.Engine` can run them: in
+this process, or on Dask workers that open the rasters from their paths.
+"""
+
+from __future__ import annotations
+
+import zlib
+
+import numpy as np
+
+from ..errors import DataFileError, InputError
+from ..execution.worker import resolve_surface
+from .pricing import combine_costs
+
+__all__ = ["tree_task", "stability_task", "stability_rng"]
+
+
+def _weights(plan):
+    from ..ground.costs import OPTION_NAMES, CostWeights
+
+    w = plan.get("weights")
+    w = CostWeights() if w is None else (w if isinstance(w, CostWeights) else CostWeights(**w))
+    if plan.get("terrain") is None and (w.climb or w.descent or w.steep_per_m):
+        opt = next(OPTION_NAMES[k] for k in ("climb", "descent", "steep_per_m") if getattr(w, k))
+        raise InputError(f"{opt} prices the terrain but no terrain raster was given; "
+                         "pass terrain= (--terrain)")
+    return w
+
+
+def _grow(sites, edges, costs, elev, root_idx, plan, *, certify=True, node_order=None,
+          terrain_surface=None):
+    """Tree over the passable candidates: Prim (+ certificate) or the gravity arborescence."""
+    from ..pipeline.layout import grow_tree
+
+    return grow_tree(sites, edges, costs, elev, root_idx, layout=plan.get("layout", "tree"),
+                     allow_forest=plan.get("allow_forest", False), design=plan.get("design"),
+                     certify=certify, node_order=node_order, terrain_surface=terrain_surface,
+                     sample_spacing_m=plan.get("sample_spacing_m"), system=plan.get("system"))
+
+
+def _tree_links(tree):
+    """Candidate indices of a tree's links, in grow order."""
+    order = np.asarray(tree.order, dtype=np.int64)
+    child = order[tree.parent[order] >= 0]
+    return child, tree.parent[child], tree.parent_edge[child]
+
+
+def _assemble(surf, sites, cands, costs, elev, plan, *, name, description):
+    """A Layout from shared stages, assembled exactly as :func:`plan_layout` does.
+
+    *surf* is the opened terrain Surface (None without terrain).
+    """
+    from ..pipeline.layout import assemble_layout
+    from ..settings import run_info_params
+
+    system, layout_kind = plan.get("system"), plan.get("layout", "tree")
+    from ..pipeline.layout import LAYOUTS
+    if layout_kind not in LAYOUTS:
+        raise InputError(f"[tree] layout: must be one of {', '.join(LAYOUTS)}, "
+                         f"got {layout_kind!r}")
+    if system not in (None, "pressure", "gravity"):
+        raise InputError(f"[design] system: must be 'pressure' or 'gravity', got {system!r}")
+    roots = plan.get("roots")
+    root_idx = sites.index_of(roots) if roots else sites.default_roots()
+    terrain = plan.get("terrain")
+    tree, cert, directed = _grow(sites, cands.edges, costs, elev, root_idx, plan,
+                                 node_order=cands.node_order, terrain_surface=surf)
+    land = plan.get("land_cost")
+    land = land if isinstance(land, dict) else ({} if land is None else {"land_cost": land})
+    params = {"scenario": name, "scenario_description": description,
+              **run_info_params({**plan, "weights": _weights(plan)},
+                                candidates_label=cands.method)}
+    lay = assemble_layout(sites, cands, costs, elev, tree, cert, directed,
+                          terrain_surface=surf, sample_spacing_m=plan.get("sample_spacing_m"),
+                          system=system, design=plan.get("design"), params=params,
+                          inputs=[("sites", sites.path), ("terrain", terrain), *land.items()])
+    return lay, root_idx
+
+
+def _named(name, exc):
+    """Keep the error's class, and name the scenario in its message."""
+    exc.args = (f"scenario {name!r}: {exc}",) + exc.args[1:]
+    return exc
+
+
+def tree_task(name, description, sites, cands, costs, elev, plan, terrain):
+    """Scenario *name*'s tree, certificate and design: ``(Layout, root indices)``.
+
+    ``terrain`` is an open Surface (embedded) or a spec from
+    :func:`mainspan.execution.worker.surface_spec`.
+    """
+    try:
+        return _assemble(resolve_surface(terrain), sites, cands, costs, elev, plan, name=name,
+                         description=description)
+    except (InputError, DataFileError) as exc:
+        raise _named(name, exc) from None
+
+
+def stability_rng(seed, name, run):
+    """The random stream of stability run *run* of scenario *name*.
+
+    One stream per (seed, scenario, run): a run draws the same factors
+    whichever worker runs it and however many runs there are, and adding a
+    scenario changes no other scenario's runs.
+    """
+    return np.random.default_rng([int(seed), zlib.crc32(name.encode()), int(run)])
+
+
+def stability_task(name, run, seed, pct, sites, edges, terrain_parts, land_parts, weights,
+                   elev, root_idx, plan, terrain):
+    """Candidate indices of the links of one perturbed tree (int64 array).
+
+    The land-cost component of every link is multiplied by its own factor
+    drawn uniformly from ``[1 - pct/100, 1 + pct/100]``.
+    """
+    try:
+        f = stability_rng(seed, name, run).uniform(1.0 - pct / 100.0, 1.0 + pct / 100.0,
+                                                   len(edges))
+        costs = combine_costs(terrain_parts, land_parts, weights, land_factor=f)
+        tree, _, _ = _grow(sites, edges, costs, elev, root_idx, plan, certify=False,
+                           terrain_surface=resolve_surface(terrain))
+        return np.asarray(_tree_links(tree)[2], dtype=np.int64)
+    except (InputError, DataFileError) as exc:
+        raise _named(name, exc) from None
