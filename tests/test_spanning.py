@@ -18,8 +18,10 @@ from scipy.sparse import coo_matrix
 from scipy.sparse.csgraph import minimum_spanning_tree
 
 from mainspan.errors import CertificateError, DisconnectedError, InputError
+from mainspan.graph import spanning
 from mainspan.graph.spanning import (Certificate, Tree, certify_tree, check_certificate,
                                connected_components, prim_tree)
+from mainspan.graph.tree_data import locality_order
 
 
 # ------------------------------------------------------------------------------------------
@@ -184,7 +186,11 @@ def test_node_order_and_link_order_do_not_change_the_result(g):
     b = prim_tree(n, edges, weights, allow_forest=True)
     perm = np.array(rnd.sample(range(n), n), dtype=np.int64)
     c = prim_tree(n, edges, weights, allow_forest=True, node_order=perm)
-    for t in (b, c):
+    # the breadth-first numbering prim_tree uses on its own for large graphs
+    bfs = locality_order(n, edges, weights, start=0)
+    assert np.array_equal(np.sort(bfs), np.arange(n))
+    d = prim_tree(n, edges, weights, allow_forest=True, node_order=bfs)
+    for t in (b, c, d):
         for name in ("parent", "parent_edge", "order", "roots", "root_of"):
             assert np.array_equal(getattr(a, name), getattr(t, name)), name
         assert a.weight == t.weight
@@ -199,6 +205,32 @@ def test_node_order_and_link_order_do_not_change_the_result(g):
     t2 = prim_tree(n, e2, w1[shuffle], allow_forest=True)
     assert np.array_equal(t1.parent, t2.parent)
     assert np.array_equal(t1.order, t2.order)
+
+
+@pytest.mark.parametrize("seed", [0, 1])
+def test_renumbering_of_large_graphs_keeps_the_tree(monkeypatch, seed):
+    """Graphs above LOCALITY_MIN_NODES run in a breadth-first numbering: same arrays as the
+    caller's numbering (node_order=identity turns it off), total equal to networkx's."""
+    rng = np.random.default_rng(seed)
+    n = 600
+    # random numbering of a grid-like graph with tied weights, two parts and a parallel link
+    pairs = [(i, i + 1) for i in range(n - 1) if (i + 1) % 30 and i != 299]
+    pairs += [(i, i + 30) for i in range(n - 30) if not 270 <= i < 300]
+    perm = rng.permutation(n)
+    edges = perm[np.array(pairs + [pairs[5]], dtype=np.int64)]
+    weights = rng.integers(1, 5, len(edges)).astype(float)
+    monkeypatch.setattr(spanning, "LOCALITY_MIN_NODES", 0)
+    auto = prim_tree(n, edges, weights, roots=(int(perm[0]),), allow_forest=True)
+    plain = prim_tree(n, edges, weights, roots=(int(perm[0]),), allow_forest=True,
+                      node_order=np.arange(n))
+    for name in ("parent", "parent_edge", "order", "roots", "root_of"):
+        assert np.array_equal(getattr(auto, name), getattr(plain, name)), name
+    assert auto.roots.size == 2
+    # networkx (Prim in pure Python) gives the same forest weight
+    g = nx_graph(n, edges, weights)
+    assert auto.weight == pytest.approx(nx_total(g), rel=1e-12)
+    cert = certify_tree(n, edges, weights, auto)
+    assert cert.ok and cert.n_checked == len(edges) - (n - 2)
 
 
 def test_order_is_prims_order_like_networkx():

@@ -99,6 +99,12 @@ def _path_max_check(n, parent, parent_edge, eu, ev, w, is_root, topo, in_tree):
     Each node keeps one jump pointer and the heaviest link on the jump (Myers 1983), which
     answers a path-maximum query in O(log n) time with O(n) memory.
     """
+    # work in the top-down numbering (node topo[i] is number i): parents come before their
+    # children and a node's subtree sits near it, so the walks below touch nearby memory
+    # whatever the caller's numbering; the answer does not depend on the numbering
+    label = np.empty(n, dtype=np.int64)
+    for i in range(n):
+        label[topo[i]] = i
     par = np.empty(n + 1, dtype=np.int64)
     up_w = np.empty(n + 1, dtype=np.float64)   # weight of the link to the parent
     depth = np.empty(n + 1, dtype=np.int64)
@@ -110,14 +116,14 @@ def _path_max_check(n, parent, parent_edge, eu, ev, w, is_root, topo, in_tree):
     depth[sr] = 0
     jump[sr] = sr
     jmax[sr] = -np.inf
-    for i in range(n):
-        v = topo[i]
-        if is_root[v]:
+    for v in range(n):
+        u = topo[v]
+        if is_root[u]:
             p = sr
             wv = -np.inf
         else:
-            p = parent[v]
-            wv = w[parent_edge[v]]
+            p = label[parent[u]]
+            wv = w[parent_edge[u]]
         par[v] = p
         up_w[v] = wv
         depth[v] = depth[p] + 1
@@ -137,8 +143,8 @@ def _path_max_check(n, parent, parent_edge, eu, ev, w, is_root, topo, in_tree):
         if in_tree[k] or not w[k] < np.inf:
             continue
         n_checked += 1
-        a = eu[k]
-        b = ev[k]
+        a = label[eu[k]]
+        b = label[ev[k]]
         mx = -np.inf
         if depth[a] < depth[b]:
             a, b = b, a
