@@ -91,7 +91,7 @@ def test_long_section_content(system):
     t = ax.transData
     (x0, y0), (x1, y1) = t.transform([(0, 0), (1, 1)])
     assert (y1 - y0) / (x1 - x0) == pytest.approx(v, rel=1e-6)
-    assert f"V×{v:g}" in ax.get_title()
+    assert f"vertical exaggeration ×{v:g}" in ax.get_title()
     labels = {ln.get_label() for ln in ax.get_lines()}
     if system == "gravity":
         assert {"invert", "crown"} <= labels
@@ -194,7 +194,9 @@ def test_quantities_with_own_total_row():
     text = report_html(lay)
     # the summary does not count the table's own total row twice
     assert f"{body_total:,.2f}" in text and f"{2 * body_total:,.2f}" not in text
-    assert text.count('class="total"') == 0
+    quantities = text[text.index('id="quantities"'):]
+    quantities = quantities[:quantities.index("</table>")]
+    assert quantities.count('class="total"') == 1 and ">TOTAL<" in quantities
 
 
 @pytest.mark.browser
@@ -228,5 +230,9 @@ def test_report_in_headless_chromium(tmp_path):
     assert dom.returncode == 0
     parser = _Ids()
     parser.feed(dom.stdout)
-    for i in ("plan-map", "summary", "quantities", "checks", "long-section-1", "run-info"):
+    for i in ("plan-map", "summary", "quantities", "checks", "long-section-1", "run-info",
+              "title-block", "cost", "node-schedule"):
         assert i in parser.ids, i
+    # every site id is in the rendered page (the node schedule), as the reviewer needs
+    for i in lay.nodes["node_id"]:
+        assert f"<td>{i}</td>" in dom.stdout, i

@@ -1,26 +1,37 @@
 """The review report: one self-contained HTML file for the engineer who checks a layout.
 
 Everything is inside the file: CSS inline, the plan map as a base64 PNG, the
-long sections as base64 SVG, no scripts, fonts or network requests — it opens
-the same offline, in a mail attachment or on a site laptop.  The bytes depend
-only on the layout (no timestamps), so two runs can be compared with ``diff``.
+long sections as base64 SVG (PNG for long paths), no scripts, fonts or network
+requests — it opens the same offline, in a mail attachment or on a site laptop.
+The bytes depend only on the layout and the title-block date (``issue_date``,
+else ``SOURCE_DATE_EPOCH``'s day, else today), so two runs can be compared.
 
-Sections (element ids in brackets, for tests and for style overrides):
-cautions (``cautions``), map (``plan-map``), summary (``summary``), bill of
-quantities (``quantities``), failed checks (``checks``), long sections
-(``long-section-1`` …), run parameters and input checksums (``run-info``,
+Sections (element ids in brackets, for tests and for style overrides): title
+block (``title-block``), cautions (``cautions``), summary (``summary``), cost
+(``cost``), pump duty (``pump-duty``), map (``plan-map``), failed checks
+(``checks``), bill of quantities (``quantities``), long sections
+(``long-section-1`` …), schedules of nodes and structures (``node-schedule``,
+``structure-schedule``), run parameters and input checksums (``run-info``,
 ``inputs``), then any ``extra_sections``, and a footer with the version.
+
+Large layouts: tables show at most :data:`~mainspan.report.tables.MAX_ROWS`
+rows; :func:`write_report` writes the full tables as CSV beside the report
+and names them under each capped table.  The map of a layout above
+:data:`~mainspan.report.planmap.LABEL_LIMIT` sites is one raster without labels.
 """
 
 from __future__ import annotations
 
 import base64
-import html
+import os
+import sys
 
 import numpy as np
 
 from ..safeio import HTML_MARKER
-from ..writers.tables import atomic_write, format_value, total_rows
+from ..writers.tables import _csv_text, atomic_write, total_rows
+from . import tables as T
+from .tables import e as _e
 
 __all__ = ["write_report", "report_html", "CAUTIONS"]
 
@@ -42,16 +53,25 @@ body { font-family: "DejaVu Sans", "Segoe UI", Arial, sans-serif; color: var(--i
 h1 { font-size: 1.6em; margin: 0.2em 0 0.1em; }
 h2 { font-size: 1.2em; border-bottom: 2px solid var(--line); padding-bottom: 3px;
      margin-top: 1.6em; }
+h3 { font-size: 1.02em; margin: 1.1em 0 0.3em; }
 .sub { color: var(--muted); margin: 0 0 1em; }
-.cautions { border: 3px solid var(--warn); background: var(--warnbg); padding: 10px 16px;
+.cautions { border: 3px solid var(--warn); background: var(--warnbg); padding: 8px 16px;
             border-radius: 4px; }
 .cautions h2 { color: var(--warn); border: 0; margin: 0.2em 0; }
-.cautions li { margin: 0.3em 0; font-weight: 600; }
-table { border-collapse: collapse; margin: 0.5em 0 1em; font-size: 0.88em; }
-th, td { border: 1px solid var(--line); padding: 3px 8px; text-align: left;
+.cautions li { margin: 0.25em 0; font-weight: 600; }
+.title-block { display: grid; grid-template-columns: repeat(3, 1fr); border: 2px solid var(--ink);
+               margin: 0.6em 0 1em; }
+.tb-cell { border: 1px solid var(--line); padding: 4px 8px; }
+.tb-label { display: block; font-size: 0.72em; color: var(--muted); text-transform: uppercase;
+            letter-spacing: 0.04em; }
+.tb-value { font-weight: 600; }
+.wide { overflow-x: auto; max-width: 100%; }
+table { border-collapse: collapse; margin: 0.5em 0 1em; font-size: 0.86em; }
+th, td { border: 1px solid var(--line); padding: 3px 7px; text-align: left;
          vertical-align: top; }
 th { background: #eef2f5; }
-td.num { text-align: right; font-variant-numeric: tabular-nums; }
+table.kv th { width: 16em; font-weight: 600; }
+td.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
 tr.total td { font-weight: 700; border-top: 2px solid var(--ink); }
 .fail { color: var(--warn); font-weight: 600; }
 .ok { color: #1d6b35; font-weight: 600; }
@@ -64,69 +84,23 @@ details pre { white-space: pre-wrap; word-break: break-all; font-size: 0.75em; }
 footer { margin-top: 3em; color: var(--muted); font-size: 0.8em;
          border-top: 1px solid var(--line); padding-top: 6px; }
 @media print {
-  @page { size: A4; margin: 14mm; }
-  body { max-width: none; padding: 0; font-size: 10pt; }
-  section.big { break-before: page; }
+  @page { size: A4; margin: 12mm; }
+  body { max-width: none; padding: 0; font-size: 9pt; }
+  h2, h3 { break-after: avoid; page-break-after: avoid; }
+  h2 + *, h3 + * { break-before: avoid; page-break-before: avoid; }
+  section.newpage { break-before: page; }
   th { background: none; }
   .cautions { background: none; }
-  table, figure, .cautions { break-inside: avoid; }
-  table.long { break-inside: auto; }
+  table { font-size: 7.5pt; }
+  .wide { overflow: visible; }
+  figure, .cautions, .title-block, table.kv { break-inside: avoid; }
   tr { break-inside: avoid; }
   thead { display: table-header-group; }
-  figure img { border: 0; }
+  figure img { border: 0; max-height: 240mm; width: auto; }
   details { display: block; }
   details > summary { display: none; }
 }
 """
-
-
-def _e(v):
-    return html.escape(str(v), quote=True)
-
-
-def _fmt(v, name=""):
-    if isinstance(v, np.generic):
-        v = v.item()
-    return format_value(v, name)
-
-
-def _is_num(v):
-    return isinstance(v, (int, float, np.integer, np.floating)) and not isinstance(v, bool)
-
-
-def _table(columns: dict, *, tid=None, cls="", total_row=None, max_rows=None):
-    names = list(columns)
-    cols = [np.asarray(columns[k]) for k in names]
-    n = len(cols[0]) if cols else 0
-    attrs = (f' id="{_e(tid)}"' if tid else "") + (f' class="{_e(cls)}"' if cls else "")
-    out = [f"<table{attrs}><thead><tr>" + "".join(f"<th>{_e(k)}</th>" for k in names)
-           + "</tr></thead><tbody>"]
-    shown = n if max_rows is None else min(n, max_rows)
-    for i in range(shown):
-        cells = []
-        for k, c in zip(names, cols):
-            v = c[i]
-            txt = _fmt(v, k)
-            klass = ' class="num"' if _is_num(v) else ""
-            if k == "checks":
-                klass = ' class="ok"' if txt in ("ok", "") else ' class="fail"'
-            cells.append(f"<td{klass}>{_e(txt)}</td>")
-        out.append("<tr>" + "".join(cells) + "</tr>")
-    if total_row is not None:
-        out.append('<tr class="total">' + "".join(
-            f'<td class="num">{_e(_fmt(total_row[k], k))}</td>' if k in total_row and
-            _is_num(total_row[k]) else f"<td>{_e(total_row.get(k, ''))}</td>"
-            for k in names) + "</tr>")
-    out.append("</tbody></table>")
-    if shown < n:
-        out.append(f'<p class="sub">… {n - shown} more rows not shown; see the links CSV.</p>')
-    return "".join(out)
-
-
-def _kv_table(pairs, *, tid=None):
-    rows = "".join(f"<tr><th>{_e(k)}</th><td>{v}</td></tr>" for k, v in pairs)
-    attr = f' id="{_e(tid)}"' if tid else ""
-    return f"<table{attr}><tbody>{rows}</tbody></table>"
 
 
 def _img(data: bytes, mime, img_id, alt):
@@ -134,68 +108,45 @@ def _img(data: bytes, mime, img_id, alt):
     return f'<img id="{_e(img_id)}" alt="{_e(alt)}" src="data:{mime};base64,{b64}">'
 
 
-def _failed(col):
-    s = np.asarray(col).astype(str)
-    return ~np.isin(s, ["ok", "", "nan", "None"])
-
-
 def _summary(layout):
     lk, nd, info = layout.links, layout.nodes, layout.run_info
     roles = np.asarray(nd.get("role", np.full(layout.n_nodes, "site"))).astype(str)
     u, c = np.unique(roles, return_counts=True)
-    pairs = [("sites", _e(f"{layout.n_nodes} (" + ", ".join(f"{k} {v}" for k, v in zip(u, c))
+    pairs = [("sites", _e(f"{layout.n_nodes:,} (" + ", ".join(f"{k} {v:,}" for k, v in zip(u, c))
                          + ")")),
-             ("links", _e(str(layout.n_links))),
+             ("links", _e(f"{layout.n_links:,}")),
              ("system", _e(info.get("system") or "not sized")),
              ("working CRS", _e(info.get("working_crs") or
                                 (layout.crs.name if layout.crs is not None else "unknown")))]
+    if info.get("output_crs"):
+        pairs.append(("output CRS (files)", _e(info["output_crs"])))
     for col, label in (("length_m", "total plan length"), ("surface_length_m",
                                                           "total length over ground")):
         if col in lk:
             pairs.append((label, _e(f"{layout.total(col):,.1f} m")))
-    if "cost" in lk:
-        pairs.append(("total cost (tree)", _e(f"{layout.total('cost'):,.2f}")))
-    q = layout.tables.get("quantities")
-    if q:
-        body = ~total_rows(q)
-        for col in ("pipe_cost", "trench_cost", "land_cost", "total_cost"):
-            if col in q and not (col == "total_cost" and info.get("design:whole_life_cost")):
-                v = float(np.nansum(np.asarray(q[col], float)[body]))
-                pairs.append((col.replace("_", " "), _e(f"{v:,.2f}")))
-    else:
-        for col in lk:
-            if col.endswith("_cost") or col == "crossings":
-                pairs.append((col.replace("_", " "), _e(f"{layout.total(col):,.2f}")))
-            elif col in ("climb_m", "descent_m"):
-                pairs.append((f"total {col[:-2]}", _e(f"{layout.total(col):,.1f} m")))
-    for key, label in (("design:total_cost", "capital cost"), ("design:energy_cost_pv", "energy cost (present value)"),
-                       ("design:whole_life_cost", "whole-life cost"), ("design:pump_duty", "pump duty"),
-                       ("design:fittings", "fittings"), ("design:prices", "prices")):
-        if info.get(key):           # pump, fittings and prices (mainspan.hydraulics.prices): placeholders are flagged
-            v = info[key]
-            try:
-                v = f"{float(v):,.2f}"
-            except ValueError:
-                v = v.strip("{}").replace("'", "").replace(": ", " ")
-            pairs.append((label, _e(v)))
+    _, total, label = T.cost_breakdown(layout)
+    if total is not None:
+        pairs.append((label, f'<b>{total:,.2f}</b> (breakdown under Cost)'))
+    if info.get("design:pump_duty"):
+        pairs.append(("pump duty", _e(T.pretty_value(info["design:pump_duty"]))))
     if "checks" in lk:
-        nf = int(_failed(lk["checks"]).sum())
-        nfn = int(_failed(nd["checks"]).sum()) if "checks" in nd else 0
+        nf = int(T._failed(lk["checks"]).sum())
+        nfn = int(T._failed(nd["checks"]).sum()) if "checks" in nd else 0
         cls = "fail" if nf + nfn else "ok"
         pairs.append(("failed checks", f'<span class="{cls}">{nf} link(s), {nfn} node(s)</span>'))
     cert = info.get("certificate", "")
     if cert:
-        pairs.append(("optimality certificate", _e(cert)))
-    return _kv_table(pairs, tid="summary")
+        pairs.append(("optimality certificate", _e(T.pretty_value(cert))))
+    return T.kv_table(pairs, tid="summary")
 
 
-def _checks_section(layout):
+def _checks_section(layout, csv):
     lk, nd = layout.links, layout.nodes
     parts = []
     if "checks" not in lk and "checks" not in nd:
         return '<p id="checks">No design checks: the layout was planned without a system.</p>'
     if "checks" in lk:
-        bad = np.flatnonzero(_failed(lk["checks"]))
+        bad = np.flatnonzero(T._failed(lk["checks"]))
         if bad.size:
             ids = np.asarray(nd["node_id"]).astype(str)
             ends = np.asarray(layout.link_ends, np.int64).reshape(-1, 2)
@@ -204,41 +155,48 @@ def _checks_section(layout):
             cols.update({k: np.asarray(lk[k])[bad] for k in
                          ("pipe", "length_m", "flow_lps", "velocity_mps", "slope_pct",
                           "depth_max_m", "checks") if k in lk})
-            parts.append("<h3>Links</h3>" + _table(cols, tid="checks-links", cls="long"))
+            parts.append("<h3>Links</h3>" + T.table(cols, tid="checks-links", cls="long",
+                                                    max_rows=T.MAX_ROWS, csv_name=csv("links")))
     if "checks" in nd:
-        bad = np.flatnonzero(_failed(nd["checks"]))
+        bad = np.flatnonzero(T._failed(nd["checks"]))
         if bad.size:
             cols = {k: np.asarray(nd[k])[bad] for k in
                     ("node_id", "role", "elevation_m", "pressure_head_m", "invert_m", "checks")
                     if k in nd}
-            parts.append("<h3>Nodes</h3>" + _table(cols, tid="checks-nodes", cls="long"))
+            parts.append("<h3>Nodes</h3>" + T.table(cols, tid="checks-nodes", cls="long",
+                                                    max_rows=T.MAX_ROWS, csv_name=csv("nodes")))
     if not parts:
         return '<p id="checks" class="ok">Every link and node passed its checks.</p>'
     return '<div id="checks">' + "".join(parts) + "</div>"
 
 
-def _quantities(layout):
+_BOQ_DROP = ("material", "inner_mm")
+
+
+def _quantities(layout, csv):
     q = layout.tables.get("quantities")
     if not q:
         return ('<p id="quantities">No bill of quantities: pipes are not sized '
                 "(plan with a pressure or gravity system).</p>")
+    cols = {k: v for k, v in q.items() if k not in _BOQ_DROP or "item" not in q}
+    labels = {"unit_cost": "rate", "length_m": "length (m)", "nominal_mm": "DN",
+              "pipe_cost": "pipe cost", "trench_cost": "trench cost",
+              "land_cost": "land cost", "total_cost": "total cost"}
+    kw = dict(tid="quantities", max_rows=T.MAX_ROWS, csv_name=csv("quantities"), labels=labels)
     if total_rows(q).any():                 # the table brings its own total row
-        return _table(dict(q), tid="quantities")
-    tot = {k: float(np.nansum(np.asarray(v, float))) for k, v in q.items()
+        return T.table(cols, **kw)
+    tot = {k: float(np.nansum(np.asarray(v, float))) for k, v in cols.items()
            if k in ("length_m", "count", "pipe_cost", "trench_cost", "land_cost", "total_cost")}
     if "count" in tot:
         tot["count"] = int(tot["count"])
-    first = next(iter(q))
-    tot[first] = "total"
-    return _table(dict(q), tid="quantities", total_row=tot)
+    tot[next(iter(cols))] = "total"
+    return T.table(cols, total_row=tot, **kw)
 
 
-def _run_info(layout):
+def _inputs(layout):
     info = layout.run_info
     inputs = [(k[len("input:"):], v) for k, v in info.items() if k.startswith("input:")]
-    other = [(k, v) for k, v in info.items()
-             if not k.startswith("input:") and k != "working_crs_wkt"]
-    out = [_kv_table([(k, _e(v)) for k, v in other], tid="run-info")]
+    out = []
     if inputs:
         rows = []
         for name, v in inputs:
@@ -257,45 +215,114 @@ def _run_info(layout):
     return "".join(out)
 
 
-def report_html(layout, *, title=None, extra_sections=(), n_sections=3):
-    """The report as a ``str`` (see :func:`write_report`)."""
-    from .plots import figure_bytes, long_section, longest_paths, plan_map
-
-    info = layout.run_info
-    title = title or info.get("title") or info.get("name") or "Layout review"
+def _map_caption(layout, fig):
     ids = np.asarray(layout.nodes["node_id"]).astype(str)
-    body = [f"<header><h1>{_e(title)}</h1><p class=\"sub\">mainspan {_e(info.get('version', ''))}"
-            f" — {_e(info.get('system') or 'not sized')} — {layout.n_nodes} sites, "
-            f"{layout.n_links} links</p></header>"]
-    body.append('<section id="cautions" class="cautions"><h2>Cautions</h2><ul>'
-                + "".join(f"<li>{_e(c)}</li>" for c in CAUTIONS) + "</ul></section>")
+    roots = fig.mainspan_roots
+    rtxt = ", ".join(ids[roots[:10]]) + (" …" if len(roots) > 10 else "")
+    parts = [f"Links coloured and widened by pipe size, labelled with link id (L…) and size "
+             f"where there is room; arrows show the direction of flow; root(s) {rtxt} marked "
+             f"with a star; each kind of failed check has its own symbol (legend)."]
+    if not fig.mainspan_root_from_role:
+        parts.append(f"No site had a source or outlet role: the tree was grown from "
+                     f"{rtxt}, chosen as the first site.")
+    if layout.n_nodes > _LABEL_LIMIT():
+        parts.append(f"{layout.n_nodes:,} sites: drawn without labels; the schedules and the "
+                     "CSV files carry every id.")
+    parts.append(f"Background: {fig.mainspan_background}.")
+    return " ".join(parts)
 
-    fig = plan_map(layout)
-    bg = getattr(fig, "mainspan_background", "none")
-    body.append('<section class="big"><h2>Map</h2><figure>'
-                + _img(figure_bytes(fig, "png"), "image/png", "plan-map", "plan of the layout")
-                + f"<figcaption>Links by pipe size; triangles: source/outlet; red crosses: "
-                  f"failed checks. Background: {_e(bg)}.</figcaption></figure></section>")
-    _close(fig)
-    body.append(f"<section><h2>Summary</h2>{_summary(layout)}</section>")
-    body.append(f"<section><h2>Bill of quantities</h2>{_quantities(layout)}</section>")
-    body.append(f"<section><h2>Failed checks</h2>{_checks_section(layout)}</section>")
 
-    secs = []
-    for k, path in enumerate(longest_paths(layout, k=n_sections), start=1):
+def _LABEL_LIMIT():
+    from .planmap import LABEL_LIMIT
+
+    return LABEL_LIMIT
+
+
+def _sections(layout, n_sections, ids, say):
+    from .plots import figure_bytes, longest_paths
+    from .section import fit_exaggeration, long_section, section_data
+
+    paths = longest_paths(layout, k=n_sections)
+    if not paths:
+        return "<p>No links.</p>"
+    # one vertical exaggeration for every section of the report: the smallest that fits all
+    vx = min(fit_exaggeration(section_data(layout, p)) for p in paths)
+    secs = [f'<p class="sub">Every section is drawn at vertical exaggeration ×{vx:g}.</p>']
+    for k, path in enumerate(paths, start=1):
+        say(f"report: long section {k} of {len(paths)}")
         what = "longest path" if k == 1 else "branch"
-        f = long_section(layout, path=path,
+        f = long_section(layout, path=path, vertical_exaggeration=vx,
                          title=f"{what.capitalize()} {ids[path[0]]} → {ids[path[-1]]}")
         cap = (f"{what} {ids[path[0]]} → {ids[path[-1]]}, {len(path) - 1} links, "
-               f"vertical exaggeration ×{f.mainspan_vertical_exaggeration:g}")
-        secs.append("<figure>" + _img(figure_bytes(f, "svg"), "image/svg+xml",
-                                      f"long-section-{k}", f"long section: {cap}")
+               f"vertical exaggeration ×{vx:g}")
+        fmt, mime = ("svg", "image/svg+xml") if len(path) <= 60 else ("png", "image/png")
+        secs.append("<figure>" + _img(figure_bytes(f, fmt), mime, f"long-section-{k}",
+                                      f"long section: {cap}")
                     + f"<figcaption>{_e(cap)}</figcaption></figure>")
-        _close(f)
-    body.append('<section class="big" id="long-sections"><h2>Long sections</h2>'
-                + ("".join(secs) or "<p>No links.</p>") + "</section>")
-    body.append(f'<section class="big"><h2>Run parameters and inputs</h2>{_run_info(layout)}'
-                "</section>")
+        f.clear()
+    return "".join(secs)
+
+
+def _csv_namer(csv_base, layout):
+    """``csv(kind)`` → the CSV name beside the report when that table will be capped."""
+    sizes = {"nodes": layout.n_nodes, "links": layout.n_links,
+             "quantities": len(next(iter(layout.tables.get("quantities", {"": []}).values()))),
+             "structures": max([len(next(iter(layout.tables[t].values())))
+                                for t in ("access_points", "fittings")
+                                if layout.tables.get(t)] or [0])}
+
+    def csv(kind):
+        if csv_base is None or sizes.get(kind, 0) <= T.MAX_ROWS:
+            return None
+        return f"{csv_base}_{kind}.csv"
+    return csv
+
+
+def report_html(layout, *, title=None, extra_sections=(), n_sections=3, csv_base=None,
+                progress=None):
+    """The report as a ``str`` (see :func:`write_report`).
+
+    ``csv_base``: file-name stem of the CSV tables written beside the report
+    (named under capped tables); ``progress(stage)``: called per writing stage.
+    """
+    from .planmap import plan_map
+    from .plots import figure_bytes
+
+    say = progress or (lambda stage: None)
+    info = layout.run_info
+    title = title or info.get("scheme_name") or info.get("title") or info.get("name") \
+        or "Layout review"
+    ids = np.asarray(layout.nodes["node_id"]).astype(str)
+    csv = _csv_namer(csv_base, layout)
+    body = [f"<header><h1>{_e(title)}</h1><p class=\"sub\">Layout review — mainspan "
+            f"{_e(info.get('version', ''))}</p>{T.title_block(layout, title)}</header>"]
+    body.append('<section id="cautions" class="cautions"><h2>Cautions</h2><ul>'
+                + "".join(f"<li>{_e(c)}</li>" for c in CAUTIONS) + "</ul></section>")
+    say("report: summary and costs")
+    body.append(f"<section><h2>Summary</h2>{_summary(layout)}</section>")
+    body.append(f"<section><h2>Cost</h2>{T.cost_section(layout)}</section>")
+    pump = T.pump_section(layout)
+    if pump:
+        body.append(f"<section><h2>Pump duty</h2>{pump}</section>")
+    say("report: plan map")
+    fig = plan_map(layout)
+    body.append('<section class="newpage"><h2>Plan</h2><figure>'
+                + _img(figure_bytes(fig, "png"), "image/png", "plan-map", "plan of the layout")
+                + f"<figcaption>{_e(_map_caption(layout, fig))}</figcaption></figure></section>")
+    fig.clear()
+    say("report: tables")
+    body.append(f"<section><h2>Failed checks</h2>{_checks_section(layout, csv)}</section>")
+    body.append(f"<section><h2>Bill of quantities</h2>{_quantities(layout, csv)}</section>")
+    body.append('<section class="newpage" id="long-sections"><h2>Long sections</h2>'
+                + _sections(layout, n_sections, ids, say) + "</section>")
+    say("report: schedules")
+    body.append(f'<section class="newpage"><h2>Schedule of nodes</h2>'
+                f'{T.node_schedule(layout, csv_name=csv("nodes"))}</section>')
+    struct = T.structure_schedule(layout, csv_name=csv("structures"))
+    if struct:
+        body.append(f"<section><h2>Schedule of structures and fittings</h2>{struct}</section>")
+    body.append(f'<section class="newpage"><h2>Run parameters and inputs</h2>'
+                f"{T.parameters(layout)}{_inputs(layout)}</section>")
     for k, item in enumerate(extra_sections, start=1):
         try:
             sec_title, sec_html = item
@@ -305,7 +332,7 @@ def report_html(layout, *, title=None, extra_sections=(), n_sections=3):
             raise InputError(f"extra_sections[{k - 1}]: expected a (title, html) pair, got "
                              f"{type(item).__name__}") from None
         # the section body is trusted HTML from another mainspan module; the title is escaped
-        body.append(f'<section class="big" id="extra-{k}"><h2>{_e(sec_title)}</h2>'
+        body.append(f'<section class="newpage" id="extra-{k}"><h2>{_e(sec_title)}</h2>'
                     f"{sec_html}</section>")
     body.append(f"<footer>Written by mainspan {_e(info.get('version', ''))}. "
                 f"{_e(CAUTIONS[0])}</footer>")
@@ -316,11 +343,27 @@ def report_html(layout, *, title=None, extra_sections=(), n_sections=3):
             + "\n".join(body) + "\n</body></html>\n")
 
 
-def _close(fig):
-    fig.clear()
+def _csv_tables(layout):
+    ends = np.asarray(layout.link_ends, np.int64).reshape(-1, 2)
+    out = {"nodes": dict(layout.nodes), "links": dict(layout.links)}
+    if layout.n_links and "from_node" not in out["links"]:
+        ids = np.asarray(layout.nodes["node_id"]).astype(str)
+        out["links"] = {"from_node": ids[ends[:, 0]], "to_node": ids[ends[:, 1]],
+                        **out["links"]}
+    if layout.tables.get("quantities"):
+        out["quantities"] = dict(layout.tables["quantities"])
+    for t in ("access_points", "fittings"):
+        if layout.tables.get(t):
+            out["structures"] = dict(layout.tables[t])
+    return out
 
 
-def write_report(layout, path, *, overwrite=False, title=None, extra_sections=()):
+#: Sites above which write_report prints its stages to stderr when no progress is given.
+PROGRESS_FROM_SITES = 20_000
+
+
+def write_report(layout, path, *, overwrite=False, title=None, extra_sections=(),
+                 progress=None):
     """Write the self-contained HTML review report of a layout.
 
     Parameters
@@ -329,17 +372,39 @@ def write_report(layout, path, *, overwrite=False, title=None, extra_sections=()
     path : str or os.PathLike
         Target ``.html`` file.
     overwrite : bool, default False
-        Replace an existing file; otherwise :class:`mainspan.errors.OverwriteError`.
+        Replace existing files (the report and its CSV tables); otherwise
+        :class:`mainspan.errors.OverwriteError`.
     title : str, optional
-        Heading and page title; default ``run_info["title"]`` or "Layout review".
+        Heading and page title; default ``run_info["scheme_name"]``, ``"title"``
+        or "Layout review".
     extra_sections : sequence of (str, str)
         ``(title, html)`` pairs appended after the run parameters (e.g. a
         scenario comparison).  Titles are escaped; the HTML is inserted as given.
+    progress : callable or bool, optional
+        ``progress(stage)`` per writing stage; ``False`` for none.  By default
+        the stages are printed to stderr for layouts above
+        :data:`PROGRESS_FROM_SITES` sites.
 
     Returns
     -------
     str
-        The path written.
+        The path written.  Tables longer than ``MAX_ROWS`` rows are capped in
+        the page and written whole beside it as ``<stem>_<table>.csv``.
     """
-    return atomic_write(path, report_html(layout, title=title, extra_sections=extra_sections),
-                        overwrite=overwrite, what="report")
+    if progress is None and layout.n_nodes > PROGRESS_FROM_SITES:
+        def progress(stage):
+            print(f"[mainspan] {stage} …", file=sys.stderr, flush=True)
+    say = progress or None
+    stem = os.path.splitext(os.path.basename(os.fspath(path)))[0]
+    text = report_html(layout, title=title, extra_sections=extra_sections, csv_base=stem,
+                       progress=say)
+    csv = _csv_namer(stem, layout)
+    folder = os.path.dirname(os.path.abspath(os.fspath(path)))
+    for kind, cols in _csv_tables(layout).items():
+        name = csv(kind)
+        if name:
+            if say:
+                say(f"report: {name}")
+            atomic_write(os.path.join(folder, name), _csv_text(cols), overwrite=overwrite,
+                         what="report table")
+    return atomic_write(path, text, overwrite=overwrite, what="report")
