@@ -2,6 +2,7 @@
 
 import doctest
 import importlib
+import importlib.util
 import inspect
 import os
 import pkgutil
@@ -14,6 +15,10 @@ import mainspan
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 MODULES = sorted(m.name for m in pkgutil.walk_packages(mainspan.__path__, "mainspan.")
                  if not m.name.startswith("mainspan.sample_data"))
+# the QGIS provider modules import QGIS's own Python modules (tests/test_qgis.py runs them)
+if importlib.util.find_spec("qgis") is None:
+    from mainspan.qgis import QGIS_MODULES
+    MODULES = [m for m in MODULES if m not in QGIS_MODULES]
 
 
 def _n_examples(name):
