@@ -229,14 +229,17 @@ def cmd_plan(a):
     gpkg = gspec.path
     from .writers.gpkg import check_layers_free
     check_layers_free(gpkg, ("links", "nodes", "run_info"), overwrite=gspec.overwrite)
+    from .writers.output_crs import check_output_settings, output_layout   # hand16
+    check_output_settings(out, where="--output-crs")
     lay, _ = _run_plan(ps, quiet=a.quiet)
-    lay.write_gpkg(gpkg, overwrite=gspec.overwrite)
+    files = output_layout(lay, out)     # the files in the output CRS; the report in metres
+    files.write_gpkg(gpkg, overwrite=gspec.overwrite)
     print(lay.summary())
     print_design(lay)
     print(f"written         {gpkg} (layers: links, nodes, run_info"
           + (", quantities" if "quantities" in lay.tables else "") + ")")
     for spec in specs[1:]:
-        _write_extra(lay, spec)
+        _write_extra(lay if spec.kind == "report" else files, spec)
     if lay.system:
         print(CAUTION)
     return 0

@@ -88,7 +88,7 @@ def section_data(layout, path):
         (chainage, bottom, top, label)), ``fittings`` (list of (chainage, z,
         kind)).
     """
-    from .plots import distance_to_root
+    from .tree import distance_to_root
     from ..writers.tables import link_inverts
 
     parent, plink = _parent_arrays(layout)
@@ -259,7 +259,7 @@ def fit_exaggeration(d, figsize=(11.0, 7.0)):
 
 
 def _plt():
-    from .plots import _plt as p
+    from .tree import _plt as p
 
     return p()
 
@@ -293,7 +293,7 @@ def long_section(layout, *, path=None, to_node=None, longest=True, figsize=(11.0
     _plt()
     from matplotlib.figure import Figure
 
-    from .plots import longest_paths
+    from .tree import longest_paths
 
     if path is None:
         if to_node is not None:

@@ -223,6 +223,20 @@ STATIC_SETTINGS = (
     S("output", "quantities_csv", "path", None, "also write the bill of quantities as CSV",
       metavar="CSV"),
     S("output", "overwrite", "bool", False, "replace existing outputs"),
+    # hand16: output CRS and units, and the report's title block (recorded in run_info by
+    # mainspan.writers.output_crs.output_layout, not by plan_layout)
+    S("output", "output_crs", "text", "working", "CRS of the written layers and drawings: "
+      "input (the sites' own CRS and units), working (the metric working CRS) or any CRS "
+      "PROJ reads, e.g. EPSG:2223", metavar="CRS"),
+    S("output", "output_lengths", "text", "m", "lengths and levels also given in the output "
+      "CRS's unit (crs: extra columns such as length_us_ft) or metres only (m)",
+      choices=("m", "crs")),
+    S("output", "scheme_name", "text", None, "scheme name for the report's title block"),
+    S("output", "revision", "text", None, "revision for the report's title block"),
+    S("output", "issue_date", "text", None, "date for the report's title block (default: "
+      "the day of the run, or of SOURCE_DATE_EPOCH)"),
+    S("output", "prepared_by", "text", None, "prepared-by name for the report's title block"),
+    S("output", "checked_by", "text", None, "checked-by name for the report's title block"),
     # execution (mainspan.execution): where tasks run; changes no result, so no run_info ------
     S("execution", "workers", "integer", None, "run tasks on a local Dask cluster of N worker "
       "processes (default: all in this process)", lo=1, metavar="N"),
