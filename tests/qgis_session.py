@@ -48,13 +48,18 @@ def install_plugin(zip_path, plugins_dir):
 class Feedback(QgsProcessingFeedback):
     def __init__(self, cancel_at=None):
         super().__init__()
-        self.texts, self.progress = [], []
+        self.texts, self.progress, self.events = [], [], []
         self.cancel_at = cancel_at
-        self.progressChanged.connect(lambda p: self.progress.append(float(p)))
+        self.progressChanged.connect(self._progress)
+
+    def _progress(self, p):
+        self.progress.append(float(p))
+        self.events.append(["progress", float(p)])
 
     def setProgressText(self, text):    # noqa: N802 - QGIS API
         super().setProgressText(text)
         self.texts.append(text)
+        self.events.append(["text", text])
         if self.cancel_at and text == self.cancel_at:
             self.cancel()
 
@@ -68,7 +73,7 @@ def run(alg, params, feedback=None):
         res = processing.run(alg, params, context=ctx, feedback=fb)
         return {"ok": True, "result": {k: (v if isinstance(v, (str, int, float, bool))
                                            or v is None else str(v)) for k, v in res.items()},
-                "texts": fb.texts, "progress": fb.progress}, ctx
+                "texts": fb.texts, "progress": fb.progress, "events": fb.events}, ctx
     except QgsProcessingException as exc:
         return {"ok": False, "error": str(exc), "texts": fb.texts,
                 "progress": fb.progress}, ctx
@@ -124,6 +129,16 @@ def main_task(a):
     res, _ = run("mainspan:plan", {**base, "CANDIDATES": "delaunay+nosuch",
                                    "OUTPUT": os.path.join(w, "bad.gpkg")})
     out["bad"] = res
+    # check and compare on the sites alone (no rasters): quick
+    sites_only = {k: base[k] for k in ("SITES", "ID_FIELD", "ROLE_FIELD", "DEMAND_FIELD")}
+    out["check"], _ = run("mainspan:check", sites_only)
+    project = os.path.join(w, "project.toml")
+    with open(project, "w") as f:
+        f.write(f"[sites]\npath = {json.dumps(os.path.join(d, 'kestrel_outlets.gpkg'))}\n"
+                "layer = \"outlets\"\nid_field = \"id\"\nrole_field = \"role\"\n"
+                "[scenarios.nearest]\ncandidates = { method = \"knn\", k = 6 }\n")
+    out["compare"], _ = run("mainspan:compare", {"PROJECT": project,
+                                                 "OUTPUT": os.path.join(w, "compare.gpkg")})
     if out["plan"]["ok"]:
         lay = os.path.join(w, "plan", "layout.gpkg")
         out["export"], _ = run("mainspan:export", {"LAYOUT": lay, "FORMAT": "DXF drawing",

@@ -256,6 +256,13 @@ def test_plan_gives_the_cli_layout_byte_for_byte(qgis_run, tmp_path):
     assert "mainspan: costs" in plan["texts"] and "mainspan: tree" in plan["texts"]
     prog = plan["progress"]
     assert prog == sorted(prog) and prog[-1] == 100.0
+    # the bar reaches the end of each stage's share as that stage ends
+    from mainspan.qgis import STAGE_SHARE
+    ends, total = [], 0.0
+    for stage in ("candidates", "costs", "tree"):
+        total += STAGE_SHARE[stage]
+        ends.append(total)
+    assert set(ends) <= set(prog), (ends, prog)
 
 
 def test_plan_layers_load_grouped_and_styled(qgis_run):
@@ -298,6 +305,21 @@ def test_export_and_report_from_the_toolbox(qgis_run):
     assert len(doc.modelspace().query("POLYLINE LWPOLYLINE")) >= 147
     with open(res["report"]["result"]["OUTPUT"], encoding="utf-8") as f:
         assert '<meta name="generator" content="mainspan">' in f.read()
+
+
+def test_check_and_compare_from_the_toolbox(qgis_run):
+    import pyogrio
+
+    res, _ = qgis_run
+    check = res["check"]
+    assert check["ok"], check.get("error")
+    assert check["result"]["OK"] is True and check["result"]["PROBLEMS"] == 0
+    assert "inputs OK" in check["result"]["REPORT"]
+    comp = res["compare"]
+    assert comp["ok"], comp.get("error")
+    assert "nearest" in comp["result"]["TABLE"]
+    names = {str(r[0]) for r in pyogrio.list_layers(comp["result"]["OUTPUT"])}
+    assert {"links_base", "links_nearest", "scenario_summary"} <= names
 
 
 def test_plugin_without_mainspan_names_the_pip_command(tmp_path):

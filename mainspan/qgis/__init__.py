@@ -21,3 +21,7 @@ QGIS_MODULES = ("mainspan.qgis.algorithms", "mainspan.qgis.handoff", "mainspan.q
 
 #: Folder name of the plugin inside the zip (and so in QGIS's plugins folder).
 PLUGIN_NAME = "mainspan_toolbox"
+
+#: Share of the progress bar (per cent) each stage of a plan fills, in order; stages not
+#: named here (reading the sites, anything a later mainspan adds) move the bar not at all.
+STAGE_SHARE = {"candidates": 5, "costs": 45, "tree": 30, "design": 15, "write": 5}

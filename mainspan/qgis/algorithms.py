@@ -29,6 +29,7 @@ from qgis.core import (QgsCoordinateReferenceSystem, QgsProcessing, QgsProcessin
                        QgsProcessingParameterVectorLayer, QgsProcessingUtils,
                        QgsProviderRegistry, QgsVectorFileWriter)
 
+from . import STAGE_SHARE
 from .params import OUTPUT_FILTERS, default_text, plan_parameters
 
 __all__ = ["MainspanAlgorithm", "PlanAlgorithm", "CheckAlgorithm", "Cancelled", "HELP_TAIL"]
@@ -43,8 +44,6 @@ def _caution():
 HELP_TAIL = ("<p>Results are a preliminary design aid, to be checked by a licensed engineer "
              "against local codes; locate existing utilities before digging.</p>")
 
-# share of the progress bar each stage of a plan fills (stages not named here move nothing)
-_STAGE_SHARE = {"candidates": 5, "costs": 45, "tree": 30, "design": 15, "write": 5}
 
 
 class Cancelled(BaseException):
@@ -66,12 +65,12 @@ class _Progress:
         if fb.isCanceled():
             raise Cancelled()
         if stage != self.stage:
-            if self.stage in _STAGE_SHARE:
-                self.done_share += _STAGE_SHARE[self.stage]
+            if self.stage in STAGE_SHARE:
+                self.done_share += STAGE_SHARE[self.stage]
             self.stage = stage
             fb.setProgressText(f"mainspan: {stage}")
         frac = (done / total) if total else 0.0
-        share = _STAGE_SHARE.get(stage, 0)
+        share = STAGE_SHARE.get(stage, 0)
         fb.setProgress(min(100.0, self.done_share + share * min(max(frac, 0.0), 1.0)))
 
 
@@ -204,6 +203,16 @@ def _layer_path(layer, what):
     return None
 
 
+def _only_layer(path, name):
+    """Whether *name* (or None) is the one layer of the file at *path*."""
+    import pyogrio
+    try:
+        names = [str(r[0]) for r in pyogrio.list_layers(path)]
+    except Exception:  # noqa: BLE001 - unreadable here: copy the layer instead
+        return False
+    return len(names) == 1 and name in (None, names[0])
+
+
 def _export_layer(layer, context, stem):
     """Write a layer that is not a plain file (memory, database, filtered) to a GeoPackage."""
     path = os.path.join(QgsProcessingUtils.tempFolder(), f"{stem}.gpkg")
@@ -257,8 +266,10 @@ def schema_values(alg, specs, parameters, context):
         elif w == "vector":
             lyr = alg.parameterAsVectorLayer(parameters, n, context)
             if lyr is not None:
-                got = _layer_path(lyr, n) or _export_layer(lyr, context, sp.setting.key)
-                values[n] = got[0] if got[1] is None else f"{got[0]}|layername={got[1]}"
+                got = _layer_path(lyr, n)
+                if got is None or not _only_layer(*got):   # mainspan reads a file's one layer
+                    got = _export_layer(lyr, context, sp.setting.key)
+                values[n] = got[0]
         elif w == "field":
             f = alg.parameterAsFields(parameters, n, context)
             values[n] = f[0] if f else None
@@ -336,7 +347,8 @@ class PlanAlgorithm(MainspanAlgorithm):
         say = _Progress(feedback)
         say("read", 0, 1)
         sites = read_sites(ps.sites_path, **ps.read_kwargs())
-        lay = plan_layout(sites, ps, progress=say)
+        with _engine(ps):
+            lay = plan_layout(sites, ps, progress=say)
         say("write", 0, 1)          # the last point where cancel is honoured
         feedback.pushInfo(lay.summary())
         paths = _write_all(lay, written, feedback)
@@ -349,6 +361,19 @@ class PlanAlgorithm(MainspanAlgorithm):
             if spec.widget == "destination" and spec.setting.key in paths:
                 res[spec.name] = paths[spec.setting.key]
         return res
+
+
+def _engine(ps):
+    """Where the plan's tasks run (the ``[execution]`` settings, as on the command line)."""
+    import contextlib
+    try:
+        from ..execution import engine_from_settings, use
+    except ImportError:         # a mainspan without the execution layer: all in this process
+        return contextlib.nullcontext()
+    stack = contextlib.ExitStack()
+    eng = stack.enter_context(engine_from_settings(ps.sections.get("execution")))
+    stack.enter_context(use(eng))
+    return stack
 
 
 def _preflight(ps, out):
