@@ -118,6 +118,7 @@ def main_task(a):
         out["tree"] = {g.name(): [(c.name(), c.layer().renderer().type(), c.layer().featureCount())
                                   for c in g.children()] for g in root.findGroups()}
         out["root_layers"] = [c.name() for c in root.children() if hasattr(c, "layer")]
+        out["styles"] = style_checks(os.path.join(w, "plan", "layout.gpkg"), w)
     # cancel while the links are priced: nothing may be left in the folder
     cancel_dir = os.path.join(w, "cancel")
     os.makedirs(cancel_dir)
@@ -145,6 +146,36 @@ def main_task(a):
                                                    "OUTPUT": os.path.join(w, "layout.dxf")})
         out["report"], _ = run("mainspan:report", {"LAYOUT": lay,
                                                    "OUTPUT": os.path.join(w, "layout.html")})
+    return out
+
+
+def style_checks(gpkg, w):
+    """Our link style for sized pipes; a style saved in the GeoPackage is kept."""
+    import shutil
+    from qgis.core import QgsLineSymbol, QgsSingleSymbolRenderer, QgsVectorLayer
+    from mainspan.qgis.styles import (_WIDTHS, SYSTEM_COLOURS, LayoutLayers, _has_own_style,
+                                      style_layer)
+    out = {"n_classes": len(_WIDTHS), "pressure_colour": SYSTEM_COLOURS["pressure"]}
+    mem = QgsVectorLayer("LineString?crs=EPSG:32633&field=nominal_mm:double", "links", "memory")
+    style_layer(mem, "links", "pressure")
+    r = mem.renderer()
+    out["sized"] = [r.type(), r.classAttribute(), [(g.lowerValue(), g.upperValue(),
+                    g.symbol().width(), g.symbol().color().name()) for g in r.ranges()]]
+    own = os.path.join(w, "own_style.gpkg")
+    shutil.copyfile(gpkg, own)
+    out["own_before"] = _has_own_style(own, "links")
+    lyr = QgsVectorLayer(own + "|layername=links", "links", "ogr")
+    lyr.setRenderer(QgsSingleSymbolRenderer(QgsLineSymbol.createSimple(
+        {"line_color": "#ff00ff", "line_width": "2"})))
+    lyr.saveStyleToDatabase("house style", "", True, "")
+    del lyr
+    out["own_after"] = _has_own_style(own, "links")
+    again = QgsVectorLayer(own + "|layername=links", "links", "ogr")   # loads the saved style
+    QgsProject.instance().addMapLayer(again)
+    ctx = QgsProcessingContext()
+    ctx.setProject(QgsProject.instance())
+    LayoutLayers(own, "links", "pressure", 0).postProcessLayer(again, ctx, Feedback())
+    out["own_colour"] = again.renderer().symbol().color().name()
     return out
 
 

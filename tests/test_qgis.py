@@ -280,6 +280,20 @@ def test_plan_layers_load_grouped_and_styled(qgis_run):
     assert l_count == pyogrio.read_info(gpkg, layer="links")["features"] == 147
 
 
+def test_link_style_by_size_and_a_saved_style_is_kept(qgis_run):
+    res, _ = qgis_run
+    st = res["styles"]
+    typ, field, ranges = st["sized"]
+    assert (typ, field) == ("graduatedSymbol", "nominal_mm")
+    widths = [w for _, _, w, _ in ranges]
+    assert widths == sorted(widths) and len(set(widths)) == st["n_classes"] >= 3
+    assert {c for *_, c in ranges} == {st["pressure_colour"]}
+    assert all(a[1] == b[0] for a, b in zip(ranges, ranges[1:]))     # no gaps between classes
+    # a default style saved in the GeoPackage's layer_styles table (QGIS's own) wins
+    assert st["own_before"] is False and st["own_after"] is True
+    assert st["own_colour"] == "#ff00ff"
+
+
 def test_cancel_mid_run_leaves_nothing(qgis_run):
     res, _ = qgis_run
     c = res["cancel"]
