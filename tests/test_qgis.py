@@ -56,6 +56,9 @@ def test_schema_settings_map_to_processing_parameters():
     assert by_name["rasters.land_cost"].widget == "rasters"
     assert by_name["tree.layout"].widget == "enum"
     assert by_name["crs.working"].widget == "crs"
+    out_crs = Setting("output", "output_crs", "text", "working", "CRS of the outputs",
+                      metavar="CRS")
+    assert params.spec_of(out_crs).widget == "text"     # 'input', 'working' or a CRS
     assert by_name["design.catalog"].widget == "file" and by_name["design.catalog"].extension == "csv"
     assert by_name["output.report"].widget == "destination"
     assert by_name["output.report"].extension == "html"

@@ -351,7 +351,9 @@ class PlanAlgorithm(MainspanAlgorithm):
             lay = plan_layout(sites, ps, progress=say)
         say("write", 0, 1)          # the last point where cancel is honoured
         feedback.pushInfo(lay.summary())
-        paths = _write_all(lay, written, feedback)
+        from ..writers.output_crs import output_layout
+        files = output_layout(lay, out)     # the files in the output CRS; the report in metres
+        paths = _write_all(lay, files, written, feedback)
         feedback.setProgress(100)
         if lay.system:
             feedback.pushWarning(_caution())
@@ -401,16 +403,19 @@ def _preflight(ps, out):
     for o in specs:
         if o.kind == "gpkg":
             check_layers_free(o.path, ("links", "nodes", "run_info"), overwrite=o.overwrite)
+    from ..writers.output_crs import check_output_settings
+    check_output_settings(out, where="parameter OUTPUT_CRS")
     return specs
 
 
-def _write_all(lay, specs, feedback):
-    """Write every output; on failure remove the files this run created."""
+def _write_all(lay, files, specs, feedback):
+    """Write every output (the report from *lay*, the others from *files*, the layout in the
+    output CRS); on failure remove the files this run created."""
     created, paths = [], {}
     try:
         for o in specs:
             existed = os.path.exists(o.path)
-            _write_one(lay, o)
+            _write_one(lay if o.kind == "report" else files, o)
             if not existed:
                 created.append(o.path)
             paths[o.kind if o.kind != "report" else "report"] = o.path

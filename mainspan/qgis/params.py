@@ -139,8 +139,8 @@ def spec_of(s) -> ParamSpec | None:
         widget = "vector"
     elif s.kind == "path":
         widget, ext = "file", _extension(s)
-    elif (s.metavar or "").upper() == "CRS":
-        widget = "crs"
+    elif (s.metavar or "").upper() == "CRS" and s.default is None:
+        widget = "crs"          # (a CRS with a word for a default, e.g. "working", is text)
     elif s.choices:
         widget = "enum"
     elif s.kind in ("number", "integer", "bool"):
