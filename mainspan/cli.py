@@ -283,7 +283,15 @@ def cmd_export(a):
                 raise InputError(f"--to {to!r}: its projection file {prj!r} would replace "
                                  "the layout; write the DXF elsewhere")
     lay = read_layout(a.layout_gpkg)
-    if ext == ".dxf":
+    if ext == ".dxf" and getattr(a, "section", False):     # hand16: long section as DXF
+        if not _has_ground(lay):
+            raise InputError(f"layout {a.layout_gpkg!r} has no ground levels, so a long "
+                             "section would be empty; plan again with --terrain DEM")
+        from .writers.section_dxf import write_section_dxf
+        rep = write_section_dxf(lay, to, to_node=a.node, overwrite=a.overwrite)
+        print(f"written {to} (datum {rep['datum_m']:.2f} m, vertical exaggeration "
+              f"x{rep['vertical_exaggeration']:g})")
+    elif ext == ".dxf":
         from .writers.dxf import write_dxf
         origin = None
         if a.origin:
@@ -401,6 +409,8 @@ def build_parser():
     ex.add_argument("--flat", action="store_true", help="DXF: 2D polylines instead of 3D")
     ex.add_argument("--origin", metavar="auto|X,Y", help="DXF: subtract a local origin")
     ex.add_argument("--quantities", action="store_true", help="CSV: the bill of quantities")
+    ex.add_argument("--section", action="store_true", help="DXF: the long section (profile "
+                    "and data bands, path as --node) instead of the plan")
     ex.add_argument("--node", metavar="ID", help="long section: path from the root to this node "
                     "(default: the longest path)")
     ex.add_argument("--overwrite", action="store_true", help="replace an existing file")
