@@ -242,7 +242,7 @@ def limited_tree(n_nodes, edges, weights, *, roots, demand_lps, limits: Limits,
     >>> t, rec = limited_tree(4, e, w, roots=[0], demand_lps=np.ones(4),
     ...                       limits=Limits(max_branch_sites=2))
     >>> sorted(t.tree_edges.tolist()), t.weight
-    ([0, 2, 3], 21.0)
+    ([1, 2, 3], 21.0)
     """
     n = int(n_nodes)
     e = np.asarray(edges, np.int64).reshape(-1, 2)
