@@ -148,10 +148,25 @@ def spec_of(s) -> ParamSpec | None:
     else:                       # text, list, table, value: typed as on the command line
         widget = "text"
     unit = f" [{s.unit}]" if s.unit and s.unit != "-" else ""
-    label = (s.help[:1].upper() + s.help[1:]) if s.help else s.key
+    label = _label(s)
     required = s.name in ("sites.path", "output.gpkg")
     return ParamSpec(param_name(s), s, widget, label + unit, optional=not required,
                      advanced=s.name not in BASIC, numeric_field=numeric, extension=ext)
+
+
+def _label(s) -> str:
+    """The dialog label: the help line without what only the command line needs."""
+    text = s.help or s.key
+    if s.choices and re.match(rf"({'|'.join(map(re.escape, s.choices))}):", text):
+        text = s.key.replace("_", " ")          # the help explains each choice: a tooltip
+    text = text.split(";")[0].replace(" (repeatable)", "").strip()
+    if s.kind in ("list", "table") and spec_widget(s) == "text":
+        text += " (comma-separated)"
+    return text[:1].upper() + text[1:]
+
+
+def spec_widget(s):
+    return "rasters" if (s.kind == "table" and "RASTER" in (s.metavar or "").upper()) else "text"
 
 
 def plan_parameters(*, outputs=True) -> list:
