@@ -118,6 +118,9 @@ def main_task(a):
         out["tree"] = {g.name(): [(c.name(), c.layer().renderer().type(), c.layer().featureCount())
                                   for c in g.children()] for g in root.findGroups()}
         out["root_layers"] = [c.name() for c in root.children() if hasattr(c, "layer")]
+        out["gdal_warnings"] = {name: gdal_messages(p) for name, p in (
+            ("layout", os.path.join(w, "plan", "layout.gpkg")),
+            ("sites", os.path.join(d, "kestrel_outlets.gpkg")))}
         out["styles"] = style_checks(os.path.join(w, "plan", "layout.gpkg"), w)
     # cancel while the links are priced: nothing may be left in the folder
     cancel_dir = os.path.join(w, "cancel")
@@ -147,6 +150,19 @@ def main_task(a):
         out["report"], _ = run("mainspan:report", {"LAYOUT": lay,
                                                    "OUTPUT": os.path.join(w, "layout.html")})
     return out
+
+
+def gdal_messages(path):
+    """What the GDAL that QGIS uses says on opening *path*."""
+    from osgeo import gdal
+    msgs = []
+    gdal.PushErrorHandler(lambda cls, no, msg: msgs.append(msg))
+    try:
+        ds = gdal.OpenEx(path)
+        del ds
+    finally:
+        gdal.PopErrorHandler()
+    return msgs
 
 
 def style_checks(gpkg, w):

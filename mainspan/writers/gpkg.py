@@ -173,6 +173,11 @@ def _drop_layers(path, names):
         con.close()
 
 
+#: GeoPackage version of new files: 1.2 holds everything mainspan writes (features,
+#: attribute tables, descriptions) and GDAL before 3.7 (QGIS 3.22) reads it without warning.
+GPKG_VERSION = "1.2"
+
+
 def write_layers(path, layers: dict, *, overwrite=False):
     """Write several (Geo)DataFrames as layers of one GeoPackage, atomically.
 
@@ -232,6 +237,8 @@ def write_layers(path, layers: dict, *, overwrite=False):
                     if "geometry" in getattr(df, "columns", []) and hasattr(df, "crs"):
                         kw["geometry_type"] = _geometry_type(df)
                     rid = run_id if name != MANIFEST else "manifest"
+                    if not os.path.exists(tmp):     # qgis17: GeoPackage 1.2, which older
+                        kw["dataset_options"] = {"VERSION": GPKG_VERSION}   # GDALs read quietly
                     pyogrio.write_dataframe(df, tmp, layer=name, driver="GPKG",
                                             layer_options={"DESCRIPTION": _DESC + rid}, **kw)
                 replace_into(tmp, target)
