@@ -326,7 +326,8 @@ class PlanAlgorithm(MainspanAlgorithm):
              "<i>run_info</i> (and the bill of quantities), loaded into the project styled and "
              "grouped; optionally the HTML review report, DXF, LandXML and CSV tables. "
              "Every parameter is a mainspan setting: the command line option of the same name "
-             "(<code>mainspan plan --help</code>) says more.</p>")
+             "(<code>mainspan plan --help</code>) says more. With several land-cost rasters, "
+             "a cost expression names each by its layer name.</p>")
 
     def initAlgorithm(self, config=None):   # noqa: N802
         self.specs = plan_parameters()
