@@ -72,6 +72,8 @@ def test_schema_settings_map_to_processing_parameters():
     barrier = Setting("route", "barriers", "path", None, "lines no main may cross",
                       metavar="LINES")
     assert params.spec_of(barrier).widget == "vector"
+    in_rasters = Setting("rasters", "barriers", "path", None, "lines no main may cross")
+    assert params.spec_of(in_rasters).widget == "vector"
     existing = Setting("existing", "existing_mains", "path", None, "mains already built")
     assert params.spec_of(existing).widget == "vector"
     assert params.spec_of(setting("prices", "bedding")) is None          # project file only

@@ -123,8 +123,8 @@ def spec_of(s) -> ParamSpec | None:
     if not s.on_cli or s.name in SKIPPED:
         return None
     widget, numeric, ext = None, False, ""
-    raster_path = (s.section == "rasters" or s.key.endswith("_raster")
-                   or (s.metavar or "").upper() in ("DEM", "RASTER"))
+    named_raster = s.key.endswith("_raster") or (s.metavar or "").upper() in ("DEM", "RASTER")
+    raster_path = named_raster or (s.section == "rasters" and not _has_word(s, _VECTOR_WORDS))
     if s.section == "sites" and s.kind == "path":
         widget = "point_layer"
     elif s.section == "sites" and s.key.endswith("_field"):
