@@ -368,3 +368,58 @@ def test_windowed_reads_equal_whole_reads(tmp_path, monkeypatch):
     assert small.n_window_reads <= ntiles
     whole.close()
     small.close()
+
+
+# --------------------------------------------------------------------------- job windows
+
+@pytest.mark.parametrize("dtype", ["int16", "float32", "float64"])
+def test_focus_reads_only_the_job_window_and_matches_scipy(tmp_path, monkeypatch, dtype):
+    """focus() narrows reading to the block-aligned box of the sites plus a margin; cells kept
+    as float32 only where that is exact; bilinear values equal scipy's map_coordinates
+    (order=1, pixel centres at index + 0.5) on the array rasterio reads, to round-off."""
+    from scipy.ndimage import map_coordinates
+
+    rng = np.random.default_rng(5)
+    H, W = 1400, 1300
+    yy, xx = np.mgrid[0:H, 0:W]
+    vals = 300 + 50 * np.sin(xx / 37.0) * np.cos(yy / 53.0) + rng.normal(0, 2, (H, W))
+    vals = vals.astype(dtype)
+    vals[700:705, 600:640] = -999   # a hole inside the job's box
+    t = from_origin(500000.0, 5014000.0, 10.0, 10.0)
+    p = write_raster(tmp_path / f"dem_{dtype}.tif", vals, transform=t, nodata=-999, blocksize=128)
+    # sites in a 3 km box: rows ~ 500..800, cols ~ 500..800
+    xy = rng.uniform([505000, 5006000], [508000, 5009000], (60, 2))
+    pts = xy[:-1] + rng.uniform(0, 1, (59, 1)) * (xy[1:] - xy[:-1])
+
+    reads = []
+    orig = Surface._read_window
+
+    def spy(self, row0, col0, nrows, ncols, **kw):
+        reads.append((row0, col0, nrows, ncols))
+        return orig(self, row0, col0, nrows, ncols, **kw)
+
+    monkeypatch.setattr(Surface, "_read_window", spy)
+    with open_surface(p, working_crs=UTM33) as s:
+        assert s.dtype == (np.float64 if dtype == "float64" else np.float32)
+        r0, c0, nr, nc = s.focus(xy)
+        assert r0 % 128 == 0 and c0 % 128 == 0 and (r0 + nr) % 128 == 0 and (c0 + nc) % 128 == 0
+        assert 512 <= nr < 900 and 512 <= nc < 900 and (r0, c0) != (0, 0)
+        z = s.sample(pts)
+        integral, nod, out = s.line_integral(xy[:-1], xy[1:])
+        assert reads == [(r0, c0, nr, nc)]          # one read: the window, nothing else
+        assert s.resident_bytes() == nr * nc * s.dtype.itemsize
+        assert nod.sum() > 0                          # the hole was crossed
+    with open_surface(p, working_crs=UTM33) as whole:   # no focus: the whole raster
+        zw = whole.sample(pts)
+        iw = whole.line_integral(xy[:-1], xy[1:])
+    assert reads[-1] == (0, 0, H, W)
+    np.testing.assert_array_equal(z, zw)              # bit for bit: the window changes nothing
+    np.testing.assert_array_equal(integral, iw[0])
+    # outside reference: scipy.ndimage.map_coordinates, order=1, on the same cells
+    ref_arr = vals.astype("float64")
+    ref_arr[ref_arr == -999] = np.nan
+    col, row = (pts[:, 0] - 500000.0) / 10.0, (5014000.0 - pts[:, 1]) / 10.0
+    ref = map_coordinates(ref_arr, [row - 0.5, col - 0.5], order=1, mode="nearest")
+    ok = ~np.isnan(z)
+    np.testing.assert_allclose(z[ok], ref[ok], rtol=1e-12)
+    assert np.isnan(ref[~ok]).all()

@@ -681,6 +681,9 @@ def price_links(xy, edges, *, working_crs, terrain=None, land_cost=None, cost_ex
                           named_land=named, class_tables=tables, expression=expr,
                           sample_spacing_m=sample_spacing_m)
         ctx.components["length_m"] = ctx.length_m
+        for s in (ter, *land.values()):   # read only the window the links can touch
+            if s is not None and hasattr(s, "focus"):
+                s.focus(xy)
 
         all_terms = [(n, COST_TERMS.get(n)) for n in _BUILTIN] + terms
         n_work = max(1, (ter is not None) + (len(land) if expr is None else bool(land)))

@@ -186,15 +186,16 @@ def _bucket(keys, nkeys):
 
 
 @numba.njit(cache=True)
-def _cell_keys(rows, cols, tr, tc, ntc):
+def _cell_keys(rows, cols, tr, tc, ntc, sr, sc):
+    """Tile of each cell; tile ``(ti, tj)`` starts at row ``ti * tr - sr``, col ``tj * tc - sc``."""
     out = np.empty(rows.shape[0], np.int64)
     for i in range(rows.shape[0]):
-        out[i] = (rows[i] // tr) * ntc + cols[i] // tc
+        out[i] = ((rows[i] + sr) // tr) * ntc + (cols[i] + sc) // tc
     return out
 
 
 @numba.njit(cache=True)
-def _point_keys(colf, rowf, w, h, tr, tc, ntc, nt):
+def _point_keys(colf, rowf, w, h, tr, tc, ntc, nt, sr, sc):
     """Tile of each fractional position (``nt`` for positions outside the raster)."""
     out = np.empty(colf.shape[0], np.int64)
     for q in range(colf.shape[0]):
@@ -203,7 +204,7 @@ def _point_keys(colf, rowf, w, h, tr, tc, ntc, nt):
         if cf >= 0.0 and cf <= w and rf >= 0.0 and rf <= h:
             r = min(int(rf), h - 1)
             c = min(int(cf), w - 1)
-            out[q] = (r // tr) * ntc + c // tc
+            out[q] = ((r + sr) // tr) * ntc + (c + sc) // tc
         else:
             out[q] = nt
     return out
@@ -216,8 +217,73 @@ def _gather_cells(arr, r0, c0, rows, cols, idx, out):
         out[i] = arr[rows[i] - r0, cols[i] - c0]
 
 
+@numba.njit(cache=True, inline="always")
+def _bilinear_cell(cf, rf, w, h):
+    """Upper-left neighbour ``(row, col)`` of a position inside the raster and its weights
+    ``(fu, fv)`` towards the next column and row; cell centres at index + 0.5, edge values
+    extended over the outer half cell."""
+    u = min(max(cf - 0.5, 0.0), w - 1.0)
+    v = min(max(rf - 0.5, 0.0), h - 1.0)
+    jj = min(int(math.floor(u)), w - 1)
+    ii = min(int(math.floor(v)), h - 1)
+    return ii, jj, u - jj, v - ii
+
+
+@numba.njit(cache=True, inline="always")
+def _bilinear_at(cf, rf, arr, r0, c0, w, h):
+    """``(value, found)`` of one position from the window ``arr`` (rows ``r0..``, cols
+    ``c0..``): NaN outside the raster, ``found`` False where a neighbour leaves the window."""
+    if not (cf >= 0.0 and cf <= w and rf >= 0.0 and rf <= h):
+        return np.nan, True
+    ii, jj, a, b = _bilinear_cell(cf, rf, w, h)
+    ia = ii - r0
+    ja = jj - c0
+    ib = min(ii + 1, h - 1) - r0
+    jb = min(jj + 1, w - 1) - c0
+    if ia < 0 or ja < 0 or ib >= arr.shape[0] or jb >= arr.shape[1]:
+        return np.nan, False
+    return _bilinear_combine(arr[ia, ja], arr[ia, jb], arr[ib, ja], arr[ib, jb], a, b), True
+
+
 @numba.njit(cache=True)
-def _bilinear_prep(colf, rowf, w, h, tr, tc, ntc):
+def _bilinear_window(colf, rowf, arr, r0, c0, w, h, out):
+    """Bilinear values of index positions straight from one window, in one pass with no
+    intermediate arrays; returns the indices of positions whose neighbours leave the window
+    (for the caller to sample otherwise)."""
+    n = colf.shape[0]
+    miss = np.empty(n, np.int64)
+    k = 0
+    for q in range(n):
+        val, found = _bilinear_at(colf[q], rowf[q], arr, r0, c0, w, h)
+        out[q] = val
+        if not found:
+            miss[k] = q
+            k += 1
+    return miss[:k]
+
+
+@numba.njit(cache=True)
+def _bilinear_window_xy(xy, inv, arr, r0, c0, w, h, out):
+    """As :func:`_bilinear_window` from working-CRS points through the affine ``inv`` (the
+    raster's inverse geotransform, same CRS): position in, value out -- 24 bytes a point."""
+    n = xy.shape[0]
+    a, b, c, d, e, f = inv[0], inv[1], inv[2], inv[3], inv[4], inv[5]
+    miss = np.empty(n, np.int64)
+    k = 0
+    for q in range(n):
+        x = xy[q, 0]
+        y = xy[q, 1]
+        # the same operations, in the same order, as Surface.to_index's numpy expression
+        val, found = _bilinear_at(a * x + b * y + c, d * x + e * y + f, arr, r0, c0, w, h)
+        out[q] = val
+        if not found:
+            miss[k] = q
+            k += 1
+    return miss[:k]
+
+
+@numba.njit(cache=True)
+def _bilinear_prep(colf, rowf, w, h, tr, tc, ntc, sr, sc):
     """Neighbour indices, weights and tile key for bilinear sampling at pixel centres.
 
     ``key`` is the tile holding all four neighbours, -1 outside the raster, and -2
@@ -234,20 +300,17 @@ def _bilinear_prep(colf, rowf, w, h, tr, tc, ntc):
         rf = rowf[q]
         if not (cf >= 0.0 and cf <= w and rf >= 0.0 and rf <= h):
             continue
-        u = min(max(cf - 0.5, 0.0), w - 1.0)
-        v = min(max(rf - 0.5, 0.0), h - 1.0)
-        jj = min(int(math.floor(u)), w - 1)
-        ii = min(int(math.floor(v)), h - 1)
+        ii, jj, a, b = _bilinear_cell(cf, rf, w, h)
         i0[q] = ii
         j0[q] = jj
-        fu[q] = u - jj
-        fv[q] = v - ii
+        fu[q] = a
+        fv[q] = b
         ib = min(ii + 1, h - 1)
         jb = min(jj + 1, w - 1)
-        if ib // tr != ii // tr or jb // tc != jj // tc:
+        if (ib + sr) // tr != (ii + sr) // tr or (jb + sc) // tc != (jj + sc) // tc:
             key[q] = -2
         else:
-            key[q] = (ii // tr) * ntc + jj // tc
+            key[q] = ((ii + sr) // tr) * ntc + (jj + sc) // tc
     return i0, j0, fu, fv, key
 
 

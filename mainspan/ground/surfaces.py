@@ -38,17 +38,24 @@ Conventions
 
 Memory
 ------
-A raster whose float64 copy fits in ``max_memory_mb`` is read whole once and
-kept.  A larger one is never read whole: it is split into tiles (a multiple
-of the raster's block size, about 1024 x 1024 cells, smaller if the budget
-demands), every query is grouped by tile with a counting sort, each needed
-tile is read once through a :class:`rasterio.windows.Window` (windows are
-aligned on the raster's blocks, so no block is decoded twice; the few bilinear
-samples whose neighbours straddle two tiles are split into their four cells
-and grouped with the rest, so each tile is still read once per query), and
-tiles are kept in a least-recently-used cache bounded by the budget.  Work on many links runs
-in chunks, links ordered by the tile of their midpoint so consecutive chunks
-reuse the cached tiles.
+Cells are kept as float32 when that holds the band exactly (8- and 16-bit
+integers, float16/32 bands: the same values as float64, half the memory), else
+float64.  Only the job's window is read: :meth:`Surface.focus` (called by
+:func:`mainspan.ground.costs.price_links` with the sites) narrows reading to the
+block-aligned bounding box of the sites plus a margin.  A window (the whole
+raster when nothing narrowed it) that fits ``max_memory_mb`` is read once, in
+one piece, with GDAL decoding its blocks on every core, and kept.  A larger one
+is never read whole: it is split into tiles (a multiple of the raster's block
+size, about 1024 x 1024 cells, smaller if the budget demands), every query is
+grouped by tile with a counting sort, each needed tile is read once through a
+:class:`rasterio.windows.Window` (windows are aligned on the raster's blocks,
+so no block is decoded twice; the few bilinear samples whose neighbours
+straddle two tiles are split into their four cells and grouped with the rest,
+so each tile is still read once per query), and tiles are kept in a
+least-recently-used cache bounded by the budget.  Nodata becomes NaN window by
+window as it is read.  Work on many links runs in chunks, links ordered by the
+tile of their midpoint so consecutive chunks reuse the cached tiles.  Neither
+the window nor the tiles change any result: only which cells are read when.
 
 References
 ----------
@@ -68,7 +75,7 @@ import pyproj
 from ..errors import DataFileError, InputError
 from .raster_kernels import (  # noqa: F401  (_accumulate is shared with costs.py)
     _crossing_bounds, _traverse_segments, _bucket, _cell_keys, _point_keys,
-    _gather_cells, _bilinear_prep, _bilinear_values, _bilinear_tile, _accumulate, _densify, _profile_stations,
+    _gather_cells, _bilinear_prep, _bilinear_values, _bilinear_window, _bilinear_window_xy, _bilinear_tile, _accumulate, _densify, _profile_stations,
     _stations_to_index, traverse_grid,
 )
 
@@ -77,8 +84,10 @@ __all__ = ["Surface", "open_surface", "traverse_grid"]
 _CHUNK_CELLS = 4_000_000       # traversal crossings held at once
 _CHUNK_POINTS = 2_000_000      # sample positions held at once
 _TILE_TARGET = 1024
+_DEFAULT_BUDGET_MB = 128
 _GDAL_CACHE_BYTES = 64 * 2 ** 20
 _ORDER_BLOCK = 256             # cells per side of the blocks that order links for locality
+_EXACT_IN_F32 = {np.dtype(t) for t in ("uint8", "int8", "uint16", "int16", "float16", "float32")}
 
 
 # --------------------------------------------------------------------------- Surface
@@ -108,7 +117,8 @@ def working_crs_of(crs):
     return out
 
 
-def open_surface(path, *, working_crs, raster_crs=None, band=1, name="terrain", max_memory_mb=512):
+def open_surface(path, *, working_crs, raster_crs=None, band=1, name="terrain",
+                 max_memory_mb=_DEFAULT_BUDGET_MB):
     """Open one band of a raster as a :class:`Surface` queried in the working CRS.
 
     Parameters
@@ -124,8 +134,10 @@ def open_surface(path, *, working_crs, raster_crs=None, band=1, name="terrain", 
         1-based band number.
     name : str, default="terrain"
         Name used in messages and component names.
-    max_memory_mb : float, default=512
-        Budget for cached raster data; larger rasters are read tile by tile.
+    max_memory_mb : float, default=128
+        Budget for cached raster cells: a job window up to this size (about 5,800 x 5,800
+        float32 cells) is read in one piece, a larger one tile by tile.  With the libraries
+        loaded (about 200 MiB) a costing run then stays under about 400 MiB.
 
     Returns
     -------
@@ -154,7 +166,7 @@ class Surface:
     """
 
     def __init__(self, path, *, working_crs, raster_crs=None, band=1, name="terrain",
-                 max_memory_mb=512):
+                 max_memory_mb=_DEFAULT_BUDGET_MB):
         import rasterio
 
         self.path = os.fspath(path)
@@ -212,26 +224,102 @@ class Surface:
             self._to_raster = pyproj.Transformer.from_crs(self.working_crs, self.crs,
                                                           always_xy=True)
         self.cell_size_m = self._working_cell_size()
-        # tiles
+        # cells are kept in the band's own precision when float32 holds it exactly (8- and
+        # 16-bit integers, float16/32): half the memory of float64 and the same values
+        self.dtype = np.dtype(np.float32 if np.dtype(ds.dtypes[self.band - 1]) in _EXACT_IN_F32
+                              else np.float64)
+        self._block = tuple(int(b) for b in ds.block_shapes[self.band - 1])
         self._budget = float(max_memory_mb) * 2 ** 20
-        whole = self.width * self.height * 8.0
-        if whole <= self._budget:
-            tr, tc = self.height, self.width
-        else:
-            side = _TILE_TARGET
-            while side ** 2 * 8.0 > self._budget / 4 and side > 8:
-                side //= 2
-            bh, bw = ds.block_shapes[self.band - 1]
-            tr = max(bh, (side // bh) * bh) if bh <= side else side
-            tc = max(bw, (side // bw) * bw) if bw <= side else side
-            tr, tc = min(tr, self.height), min(tc, self.width)
-        self.tile_shape = (int(tr), int(tc))
-        self._ntr = -(-self.height // tr)
-        self._ntc = -(-self.width // tc)
         self._cache: OrderedDict = OrderedDict()
         self._cache_bytes = 0
         self.n_window_reads = 0
         self.max_window_cells = 0
+        self.window = (0, 0, self.height, self.width)
+        self._set_tiles(*self.window)
+
+    def _set_tiles(self, r0, c0, nr, nc):
+        """Tile grid for the region ``rows r0..r0+nr, cols c0..c0+nc``: one tile when the
+        region fits the budget, else block-aligned tiles of about 1024 cells a side; tile
+        borders fall on the region's corner (tile ``(ti, tj)`` starts at row ``ti*tr - sr``)."""
+        item = self.dtype.itemsize
+        if nr * nc * item <= self._budget:
+            tr, tc = nr, nc
+        else:
+            side = _TILE_TARGET
+            while side ** 2 * item > self._budget / 4 and side > 8:
+                side //= 2
+            bh, bw = self._block
+            tr = max(bh, (side // bh) * bh) if bh <= side else side
+            tc = max(bw, (side // bw) * bw) if bw <= side else side
+            tr, tc = min(tr, nr), min(tc, nc)
+        self.tile_shape = (int(tr), int(tc))
+        self._shift = (int(-r0 % tr), int(-c0 % tc))
+        self._ntr = -(-(self.height + self._shift[0]) // tr)
+        self._ntc = -(-(self.width + self._shift[1]) // tc)
+        self._cache.clear()
+        self._cache_bytes = 0
+
+    def focus(self, xy, *, margin_cells=8):
+        """Read only the part of the raster around these working-CRS points.
+
+        The job's extent (the bounding box of *xy* in raster cells, plus ``margin_cells`` and,
+        for a raster in another CRS, 5 % of the box for the bend of straight working-CRS
+        lines), widened to at least 512 cells a side and aligned outward on the raster's
+        blocks, becomes the window that is read: in one piece when it fits
+        ``max_memory_mb``, else tile by tile.  Queries outside it stay correct (their tiles
+        are read when asked for); only speed and memory depend on the window.
+
+        Parameters
+        ----------
+        xy : array_like, shape (k, 2)
+            Working-CRS points the job's links join (every link lies in their bounding box).
+        margin_cells : int, default=8
+            Cells added on every side.
+
+        Returns
+        -------
+        tuple of int
+            The window ``(row0, col0, nrows, ncols)``.
+        """
+        col, row = self.to_index(np.asarray(xy, dtype=np.float64).reshape(-1, 2))
+        ok = np.isfinite(col) & np.isfinite(row)
+        if not ok.any():
+            return self.window
+        c_lo, c_hi = float(col[ok].min()), float(col[ok].max())
+        r_lo, r_hi = float(row[ok].min()), float(row[ok].max())
+        pad_c = pad_r = float(margin_cells)
+        if not self.same_crs:
+            pad_c += 0.05 * (c_hi - c_lo)
+            pad_r += 0.05 * (r_hi - r_lo)
+        bounds = []
+        for lo, hi, pad, size, blk, whole_blk in (
+                (r_lo, r_hi, pad_r, self.height, self._block[0], False),
+                (c_lo, c_hi, pad_c, self.width, self._block[1], self._block[1] >= self.width)):
+            a = math.floor(lo - pad)
+            b = math.ceil(hi + pad) + 1
+            short = 512 - (b - a)
+            if short > 0:
+                a, b = a - short // 2, b + short - short // 2
+            a, b = max(0, min(a, size)), max(0, min(b, size))
+            if blk > 1 and not whole_blk:   # block-aligned: no block is decoded for nothing
+                a, b = (a // blk) * blk, min(size, -(-b // blk) * blk)
+            bounds.append((a, b))
+        (ra, rb), (ca, cb) = bounds
+        if rb <= ra or cb <= ca:
+            return self.window           # the points miss the raster: nothing to narrow
+        win = (ra, ca, rb - ra, cb - ca)
+        if win != self.window:
+            self.window = win
+            self._set_tiles(*win)
+        return self.window
+
+    def resident_bytes(self):
+        """Bytes of raster cells this surface holds at most (its window, capped by the budget)."""
+        _, _, nr, nc = self.window
+        return int(min(nr * nc * self.dtype.itemsize, max(self._budget, self._tile_bytes())))
+
+    def _tile_bytes(self):
+        return self.tile_shape[0] * self.tile_shape[1] * self.dtype.itemsize
 
     # ------------------------------------------------------------------ housekeeping
     def close(self):
@@ -241,8 +329,8 @@ class Surface:
         self._ds.close()
 
     def release(self):
-        """Drop cached tiles of a raster read tile by tile (a whole-read raster is kept)."""
-        if self._ntr * self._ntc > 1:
+        """Drop cached tiles of a raster read tile by tile (a window read whole is kept)."""
+        if self.tile_shape != self.window[2:]:
             self._cache.clear()
             self._cache_bytes = 0
 
@@ -284,7 +372,7 @@ class Surface:
 
     # ------------------------------------------------------------------ reading
     def _read_window(self, row0, col0, nrows, ncols):
-        """Read one window as float64 with NaN for nodata (the only place that reads)."""
+        """Read one window as :attr:`dtype` with NaN for nodata (the only place that reads)."""
         from rasterio.windows import Window
 
         import rasterio
@@ -294,9 +382,10 @@ class Surface:
         self.max_window_cells = max(self.max_window_cells, nrows * ncols)
         try:
             # every window is read once and kept in our own cache, so GDAL's block cache
-            # (5 % of RAM by default) would only double the memory: keep it small
-            with rasterio.Env(GDAL_CACHEMAX=_GDAL_CACHE_BYTES):
-                a = self._ds.read(self.band, window=win, out_dtype="float64")
+            # (5 % of RAM by default) would only double the memory: keep it small; a window
+            # spans many blocks, which GDAL decodes on every core (GeoTIFF, GDAL >= 3.6)
+            with rasterio.Env(GDAL_CACHEMAX=_GDAL_CACHE_BYTES, GDAL_NUM_THREADS="ALL_CPUS"):
+                a = self._ds.read(self.band, window=win, out_dtype=self.dtype)
         except Exception as exc:
             raise DataFileError(f"cannot read raster {self.path!r} ({self.name}) at rows "
                                 f"{row0}..{row0 + nrows - 1}, cols {col0}..{col0 + ncols - 1}: "
@@ -318,9 +407,10 @@ class Surface:
             return hit
         tr, tc = self.tile_shape
         ti, tj = divmod(int(key), self._ntc)
-        r0, c0 = ti * tr, tj * tc
-        nr = min(tr, self.height - r0)
-        nc = min(tc, self.width - c0)
+        r0, c0 = ti * tr - self._shift[0], tj * tc - self._shift[1]
+        nr = min(r0 + tr, self.height) - max(r0, 0)
+        nc = min(c0 + tc, self.width) - max(c0, 0)
+        r0, c0 = max(r0, 0), max(c0, 0)
         arr = self._read_window(r0, c0, nr, nc)
         entry = (arr, r0, c0)
         self._cache[key] = entry
@@ -332,10 +422,12 @@ class Surface:
 
     def read_all(self):
         """The whole band as float64 with NaN nodata (only if it fits the budget)."""
-        if self._ntr * self._ntc != 1:
+        if self.width * self.height * self.dtype.itemsize > self._budget:
             raise InputError(f"raster {self.path!r} ({self.name}) is larger than max_memory_mb; "
                              "it is only read tile by tile")
-        return self._tile(0)[0]
+        if self.window == (0, 0, self.height, self.width):
+            return self._tile(0)[0].astype(np.float64, copy=False)
+        return self._read_window(0, 0, self.height, self.width).astype(np.float64, copy=False)
 
     # ------------------------------------------------------------------ coordinates
     def to_index(self, xy):
@@ -364,7 +456,11 @@ class Surface:
         if rows.shape[0] == 0:
             return out
         tr, tc = self.tile_shape
-        keys = _cell_keys(rows, cols, tr, tc, self._ntc)
+        keys = _cell_keys(rows, cols, tr, tc, self._ntc, *self._shift)
+        if bool((keys == keys[0]).all()):          # one tile: no grouping needed
+            arr, r0, c0 = self._tile(int(keys[0]))
+            _gather_cells(arr, r0, c0, rows, cols, np.arange(rows.shape[0], dtype=np.int64), out)
+            return out
         order, starts = _bucket(keys, self._ntr * self._ntc)
         for key in np.flatnonzero(np.diff(starts)):
             arr, r0, c0 = self._tile(key)
@@ -377,7 +473,15 @@ class Surface:
         out = np.full(colf.shape[0], np.nan)
         tr, tc = self.tile_shape
         i0, j0, fu, fv, key = _bilinear_prep(colf, rowf, self.width, self.height, tr, tc,
-                                             self._ntc)
+                                             self._ntc, *self._shift)
+        n = colf.shape[0]
+        if n and key[0] >= 0 and bool((key == key[0]).all()):
+            # all in one tile (the usual case once focus() has set the window): no grouping
+            arr, r0, c0 = self._tile(int(key[0]))
+            none = np.zeros(0, np.int64)
+            _bilinear_tile(arr, r0, c0, self.width, self.height, i0, j0, fu, fv,
+                           np.arange(n, dtype=np.int64), n, none, none, out, np.zeros(0))
+            return out
         # samples whose neighbours straddle tiles are split into their four cells, which
         # join the same tile grouping, so each tile is visited once per call
         strad = np.flatnonzero(key == -2)
@@ -386,7 +490,7 @@ class Surface:
         srows = np.concatenate([ia, ia, ib, ib])
         scols = np.concatenate([ja, jb, ja, jb])
         n = colf.shape[0]
-        keys = np.concatenate([key, _cell_keys(srows, scols, tr, tc, self._ntc)])
+        keys = np.concatenate([key, _cell_keys(srows, scols, tr, tc, self._ntc, *self._shift)])
         order, starts = _bucket(keys, self._ntr * self._ntc)
         sval = np.empty(srows.shape[0])
         for k in np.flatnonzero(np.diff(starts)):
@@ -397,9 +501,27 @@ class Surface:
             _bilinear_values(sval, fu[strad], fv[strad], out, strad)
         return out
 
+    def _window_array(self):
+        """``(cells, row0, col0)`` of the window read in one piece."""
+        (r0, c0), (sr, sc), (tr, tc) = self.window[:2], self._shift, self.tile_shape
+        return self._tile(((r0 + sr) // tr) * self._ntc + (c0 + sc) // tc)
+
     def _sample_many(self, colf, rowf, progress=None):
         """Bilinear values at many index positions, in tile order and bounded chunks."""
         n = colf.shape[0]
+        if self.tile_shape == self.window[2:] and n:
+            # the window is read in one piece: one pass straight from it, the rare
+            # positions beyond it through the tiles
+            arr, r0, c0 = self._window_array()
+            out = np.empty(n)
+            miss = _bilinear_window(np.ascontiguousarray(colf, dtype=np.float64),
+                                    np.ascontiguousarray(rowf, dtype=np.float64), arr, r0, c0,
+                                    self.width, self.height, out)
+            if miss.size:
+                out[miss] = self._sample_index(colf[miss], rowf[miss])
+            if progress is not None:
+                progress(n, n)
+            return out
         if n <= _CHUNK_POINTS:
             out = self._sample_index(colf, rowf)
             if progress is not None:
@@ -407,7 +529,8 @@ class Surface:
             return out
         nt = self._ntr * self._ntc
         tr, tc = self.tile_shape
-        keys = _point_keys(colf, rowf, self.width, self.height, tr, tc, self._ntc, nt)
+        keys = _point_keys(colf, rowf, self.width, self.height, tr, tc, self._ntc, nt,
+                           *self._shift)
         order, _ = _bucket(keys, nt + 1)
         del keys
         out = np.empty(n)
@@ -442,7 +565,17 @@ class Surface:
         ndarray of float64, shape (k,)
             NaN outside the raster and where a weighted neighbour is nodata.
         """
-        xy = np.asarray(xy, dtype=np.float64).reshape(-1, 2)
+        xy = np.ascontiguousarray(xy, dtype=np.float64).reshape(-1, 2)
+        if self.same_crs and self.tile_shape == self.window[2:] and xy.shape[0]:
+            arr, r0, c0 = self._window_array()      # one pass: point in, value out
+            out = np.empty(xy.shape[0])
+            miss = _bilinear_window_xy(xy, np.array(self._inv), arr, r0, c0, self.width,
+                                       self.height, out)
+            if miss.size:
+                out[miss] = self._sample_index(*self.to_index(xy[miss]))
+            if progress is not None:
+                progress(xy.shape[0], xy.shape[0])
+            return out
         colf, rowf = self._to_index_chunked(xy)
         return self._sample_many(colf, rowf, progress)
 
@@ -458,6 +591,8 @@ class Surface:
         with np.errstate(invalid="ignore"):
             row = np.clip(np.nan_to_num(row, nan=0.0), 0, self.height - 1).astype(np.int64)
             col = np.clip(np.nan_to_num(col, nan=0.0), 0, self.width - 1).astype(np.int64)
+        row += self._shift[0]
+        col += self._shift[1]
         ti, tj = row // tr, col // tc
         # serpentine order over tile rows keeps neighbouring chunks adjacent
         tj = np.where(ti % 2 == 1, self._ntc - 1 - tj, tj)

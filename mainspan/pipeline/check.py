@@ -71,6 +71,15 @@ def _raster_info(path, working_crs, xy, raster_crs=None):
     return info, inside
 
 
+def _window_bytes(path, sites, raster_crs, name):
+    """Raster cells a run keeps for this raster: the window its sites touch, as read."""
+    from ..ground.surfaces import open_surface
+
+    with open_surface(path, working_crs=sites.crs, raster_crs=raster_crs, name=name) as s:
+        s.focus(sites.xy)
+        return s.resident_bytes()
+
+
 def check_inputs(settings, *, dry_run=True) -> CheckReport:
     """Validate the inputs named by merged settings (see :mod:`mainspan.settings.project`).
 
@@ -122,7 +131,7 @@ def check_inputs(settings, *, dry_run=True) -> CheckReport:
     raster_bytes = 0
     for name, p in rasters:
         info, inside = _raster_info(p, sites.crs, sites.xy, plan_kw.get("raster_crs"))
-        raster_bytes = max(raster_bytes, info["bytes"])
+        raster_bytes += _window_bytes(p, sites, plan_kw.get("raster_crs"), name)
         rep.lines += [f"raster {name:<9}{p}",
                       f"  CRS {info['crs']}, {info['size']} cells of {info['cell']}, "
                       f"{info['dtype']}, nodata {info['nodata']}",
@@ -137,7 +146,7 @@ def check_inputs(settings, *, dry_run=True) -> CheckReport:
         names = list(lc.keys()) if isinstance(lc, dict) else ["land_cost"]
         parse_expression(plan_kw["cost_expression"], names=names)
     m_est = 3 * sites.n if "delaunay" in str(method) else plan_kw.get("k", 8) * sites.n
-    est = m_est * 8 * 24 + sites.n * 8 * 20 + min(raster_bytes, 512 * 2**20)
+    est = m_est * 8 * 24 + sites.n * 8 * 20 + raster_bytes
     rep.lines.append(f"memory estimate ~{est / 2**20:.0f} MiB for about {m_est:,} candidate links")
     if dry_run and not rep.problems:
         # The same validation as 'plan', by running it (nothing is written): check never
