@@ -209,3 +209,41 @@ def test_real_layout_report(real):
         assert pipe in text
     assert any(c[:40] in text for c in CAUTIONS)
     assert report_html(lay) == html           # same layout, same bytes
+
+
+def test_real_layout_packed_profiles(real):
+    """link_profiles holds one row per link with little-endian float64 arrays; read with
+    Python's sqlite3 (an outside reader), the ground equals scipy's bilinear interpolation of
+    the DEM between cell centres (map_coordinates, order=1), and read_layout gives the same
+    profiles back."""
+    import sqlite3
+
+    from scipy.ndimage import map_coordinates
+
+    from mainspan import read_layout
+
+    lay = real["lay"]
+    p = real["tmp"] / "profiles.gpkg"
+    lay.write_gpkg(p, overwrite=True)
+    con = sqlite3.connect(p)
+    try:
+        rows = con.execute("SELECT link_id, n_stations, station_m, ground_m FROM link_profiles "
+                           "ORDER BY fid").fetchall()
+    finally:
+        con.close()
+    assert len(rows) == lay.n_links
+    for k, (lid, n, st_blob, z_blob) in enumerate(rows):
+        assert lid == lay.links["link_id"][k]
+        st = np.frombuffer(st_blob, "<f8")
+        z = np.frombuffer(z_blob, "<f8")
+        assert st.shape == z.shape == (n,) and n >= 2
+        want_st, want_z = lay.profiles.of(k)
+        np.testing.assert_array_equal(st, want_st)
+        a, b = lay.node_xy[lay.link_ends[k]]
+        pos = a + (st / st[-1])[:, None] * (b - a)
+        col, row = (pos[:, 0] - X0) / CELL, (Y0 - pos[:, 1]) / CELL
+        ref = map_coordinates(real["z"], [row - 0.5, col - 0.5], order=1, mode="nearest")
+        np.testing.assert_allclose(z, ref, rtol=1e-9)
+    back = read_layout(p)
+    for name in ("offsets", "station_m", "ground_m"):
+        np.testing.assert_array_equal(getattr(back.profiles, name), getattr(lay.profiles, name))

@@ -175,11 +175,10 @@ class Layout:
                     dtype=object), crs=self.crs)
             out[f"{name}{suffix}"] = df
         if self.profiles is not None and self.n_links:
+            from ..writers.gpkg import pack_profiles   # one row per link, packed arrays
             p = self.profiles
-            counts = np.diff(p.offsets)
-            out[f"link_profiles{suffix}"] = pd.DataFrame({
-                "link_id": np.repeat(np.asarray(self.links["link_id"]), counts),
-                "station_m": p.station_m, "ground_m": p.ground_m})
+            out[f"link_profiles{suffix}"] = pack_profiles(self.links["link_id"], p.offsets,
+                                                          p.station_m, p.ground_m)
         return out
 
     def write_gpkg(self, path, *, overwrite=False, suffix=""):
@@ -303,14 +302,9 @@ def read_layout(path, *, suffix="") -> Layout:
                 tables[name]["x"], tables[name]["y"] = geom.x.to_numpy(), geom.y.to_numpy()
     profiles = None
     if f"link_profiles{suffix}" in names and len(links.get("link_id", [])):
-        t = read_table(path, f"link_profiles{suffix}")
-        lid = t["link_id"].to_numpy()
-        order = {int(v): i for i, v in enumerate(links["link_id"])}
-        idx = np.array([order[int(v)] for v in lid], dtype=np.int64)
-        srt = np.argsort(idx, kind="stable")
-        counts = np.bincount(idx, minlength=len(ends))
-        profiles = Profiles(np.concatenate([[0], np.cumsum(counts)]).astype(np.int64),
-                            t["station_m"].to_numpy(float)[srt], t["ground_m"].to_numpy(float)[srt])
+        from ..writers.gpkg import unpack_profiles
+        profiles = Profiles(*unpack_profiles(read_table(path, f"link_profiles{suffix}"),
+                                             links["link_id"]))
     return Layout(crs=crs, nodes=nodes, node_xy=node_xy, links=links, link_ends=ends,
                   tables=tables, run_info=info, profiles=profiles)
 

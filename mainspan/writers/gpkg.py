@@ -19,6 +19,17 @@ Safety rules (the file handling itself is :mod:`mainspan.safeio`):
 * Readers call :func:`check_one_run`: a file whose layers come from
   different runs is refused, naming the layers.
 * ``OGR_CURRENT_DATE`` is pinned so the same layout gives the same bytes.
+
+Layers go through GDAL's Arrow path (``use_arrow=True``): whole columns at a time
+rather than one feature at a time.
+
+Ground profiles (``link_profiles``) are packed one row per link: ``link_id``,
+``n_stations``, and two BLOB columns ``station_m`` and ``ground_m`` each holding
+``n_stations`` little-endian IEEE float64 values (NaN where the ground is
+nodata), in the order of the stations from the link's ``from_node``.  In SQL a
+value is ``substr(ground_m, 8*k + 1, 8)``; in numpy
+``np.frombuffer(blob, "<f8")``.  :func:`unpack_profiles` reads both this form
+and the one-row-per-station form of earlier versions.
 """
 
 from __future__ import annotations
@@ -32,7 +43,8 @@ import numpy as np
 from ..errors import DataFileError, OverwriteError
 
 __all__ = ["write_layers", "list_layers", "check_layers_free", "read_table", "FIXED_DATE",
-           "MANIFEST", "layer_run_ids", "check_one_run", "mainspan_layers"]
+           "MANIFEST", "layer_run_ids", "check_one_run", "mainspan_layers", "pack_profiles",
+           "unpack_profiles"]
 
 #: Timestamp written into ``gpkg_contents`` so output bytes are reproducible.
 FIXED_DATE = "2000-01-01T00:00:00.000Z"
@@ -239,7 +251,7 @@ def write_layers(path, layers: dict, *, overwrite=False):
                     rid = run_id if name != MANIFEST else "manifest"
                     if not os.path.exists(tmp):     # qgis17: GeoPackage 1.2, which older
                         kw["dataset_options"] = {"VERSION": GPKG_VERSION}   # GDALs read quietly
-                    pyogrio.write_dataframe(df, tmp, layer=name, driver="GPKG",
+                    pyogrio.write_dataframe(df, tmp, layer=name, driver="GPKG", use_arrow=True,
                                             layer_options={"DESCRIPTION": _DESC + rid}, **kw)
                 replace_into(tmp, target)
     except (OverwriteError, DataFileError):
@@ -272,3 +284,70 @@ def read_table(path, layer):
         raise DataFileError(f"GeoPackage {path!r} has no layer {layer!r} (layers: "
                             f"{', '.join(names)}); is it a mainspan layout?")
     return pyogrio.read_dataframe(path, layer=layer)
+
+
+def pack_profiles(link_id, offsets, station_m, ground_m):
+    """The ``link_profiles`` table, one row per link (see the module notes).
+
+    Parameters
+    ----------
+    link_id : array_like of int, shape (L,)
+    offsets : array_like of int, shape (L + 1,)
+        Stations of link ``i`` are ``offsets[i]:offsets[i+1]``.
+    station_m, ground_m : array_like of float
+        Distance along the link from its ``from_node`` and ground level, per station.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Columns ``link_id``, ``n_stations``, ``station_m`` and ``ground_m`` (bytes).
+
+    Examples
+    --------
+    >>> t = pack_profiles([7], [0, 2], [0.0, 5.0], [101.5, 102.0])
+    >>> int(t.n_stations[0]), np.frombuffer(t.ground_m[0], "<f8").tolist()
+    (2, [101.5, 102.0])
+    """
+    import pandas as pd
+
+    off = np.asarray(offsets, dtype=np.int64)
+    cols = {"link_id": np.asarray(link_id), "n_stations": np.diff(off)}
+    for name, v in (("station_m", station_m), ("ground_m", ground_m)):
+        raw = np.ascontiguousarray(v, dtype="<f8").tobytes()
+        cols[name] = np.array([raw[8 * a:8 * b] for a, b in zip(off[:-1].tolist(),
+                                                               off[1:].tolist())], dtype=object)
+    return pd.DataFrame(cols)
+
+
+def unpack_profiles(table, link_ids):
+    """``(offsets, station_m, ground_m)`` in the order of *link_ids* from a ``link_profiles`` table.
+
+    Reads the packed form (one row per link) and the older one row per station.  Links
+    without a row get no stations.
+    """
+    link_ids = np.asarray(link_ids).astype(np.int64)
+    lid = np.asarray(table["link_id"]).astype(np.int64)
+    where = {int(v): i for i, v in enumerate(link_ids)}
+    try:
+        idx = np.array([where[int(v)] for v in lid], dtype=np.int64)
+    except KeyError as exc:
+        raise DataFileError(f"link_profiles names link {exc.args[0]} that is not in the links "
+                            "layer; the file is damaged or not a mainspan layout") from None
+    if "n_stations" in table.columns:        # packed: one row per link
+        counts = np.zeros(link_ids.shape[0], dtype=np.int64)
+        n = np.asarray(table["n_stations"]).astype(np.int64)
+        counts[idx] = n
+        srt = np.argsort(idx, kind="stable")
+        st_col, z_col = list(table["station_m"]), list(table["ground_m"])
+        st = np.frombuffer(b"".join(bytes(st_col[i]) for i in srt), "<f8").astype(np.float64)
+        z = np.frombuffer(b"".join(bytes(z_col[i]) for i in srt), "<f8").astype(np.float64)
+        if st.shape[0] != int(n.sum()) or z.shape[0] != st.shape[0]:
+            raise DataFileError("link_profiles: the packed arrays do not hold n_stations values "
+                                "each; the file is damaged")
+    else:                                   # one row per station (earlier versions)
+        srt = np.argsort(idx, kind="stable")
+        counts = np.bincount(idx, minlength=link_ids.shape[0])
+        st = np.asarray(table["station_m"], dtype=np.float64)[srt]
+        z = np.asarray(table["ground_m"], dtype=np.float64)[srt]
+    offsets = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
+    return offsets, st, z
