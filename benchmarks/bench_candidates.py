@@ -12,7 +12,9 @@ Delaunay links as an int64 (m, 2) array of node indices, ``i < j``, sorted and u
   triangulation only: mapping its line coordinates back to node indices is not counted);
 * ours: ``build_candidates(xy)`` (validation, local origin, two halves triangulated in
   parallel by GEOS -- each checked by Euler's formula, Qhull on failure -- an exact merge
-  along the cut, links normalised, plus the Hilbert node order).
+  along the cut, links normalised, plus the Hilbert node order).  The split runs only when
+  two CPUs are idle at that moment; the rows below also time it with one triangulation and
+  with the split forced, so both choices are measured under the same load.
 
 The link sets of ours and the baseline are compared.  Where they differ (nearly cocircular
 points, where floating-point triangulators may pick different diagonals), each differing
@@ -105,10 +107,22 @@ def main(argv=None):
         finally:
             candidates._SPLIT_MIN_POINTS = saved
 
+    def ours_split():
+        saved = candidates._idle_cpus
+        candidates._idle_cpus = lambda: 2.0          # as if two cores were idle
+        try:
+            return build_candidates(xy).edges
+        finally:
+            candidates._idle_cpus = saved
+
     build_candidates(xy[:1000])                      # compile / load the numba kernels
+    idle = candidates._idle_cpus(0.2)
+    print(f"idle CPUs now: {idle:.2f} of {candidates._n_cpus()}: the default "
+          f"{'splits' if idle >= 1.5 else 'runs one triangulation'} (it splits only with >= 1.5 idle)")
     contenders = [("scipy Delaunay (defaults) + np.unique", baseline),
                   ("build_candidates(xy) (delaunay)", ours),
-                  ("  same, one triangulation (no two-half split)", ours_one_run)]
+                  ("  same, one triangulation (no two-half split)", ours_one_run),
+                  ("  same, two-half split forced", ours_split)]
     if not a.no_geos:
         contenders.insert(1, ("shapely.delaunay_triangles(only_edges=True)", geos))
     times = {name: [] for name, _ in contenders}

@@ -331,6 +331,28 @@ def test_builders_are_registered():
 # the two-half parallel Delaunay must give the same links as one Qhull run
 # ------------------------------------------------------------------------------------------
 
+def test_split_delaunay_only_when_two_cores_are_idle(monkeypatch):
+    import os
+
+    from scipy.spatial import ConvexHull
+
+    from mainspan.graph import candidates
+
+    calls = []
+    monkeypatch.setattr(candidates, "_n_cpus", lambda: 2)
+    monkeypatch.setattr(candidates, "_qhull_split", lambda xy: calls.append(len(xy)))
+    xy = np.random.default_rng(3).random((300, 2)) * 1000.0
+    for idle, split in ((0.9, False), (1.4, False), (1.6, True)):
+        calls.clear()
+        monkeypatch.setattr(candidates, "_idle_cpus", lambda idle=idle: idle)
+        e = candidates.delaunay_links(xy, split_min_points=8)
+        assert bool(calls) == split, idle
+        # one Qhull run either way here (the stub merge declines): 3n - 3 - h links, each
+        # triangle's three (Euler's formula for a triangulation)
+        assert len(normalize_edges(e, len(xy))) == 3 * len(xy) - 3 - len(ConvexHull(xy).vertices)
+    assert 0.0 <= candidates._idle_cpus(0.01) <= (os.cpu_count() or 1) + 1e-9
+
+
 @pytest.mark.parametrize("case", ["uniform", "clustered", "grid", "grid_jittered"])
 def test_split_delaunay_equals_single_run(case, monkeypatch):
     from mainspan.graph import candidates
@@ -348,6 +370,7 @@ def test_split_delaunay_equals_single_run(case, monkeypatch):
         if case == "grid_jittered":
             xy = xy + rng.normal(0.0, 1.0, xy.shape)
     n = len(xy)
+    monkeypatch.setattr(candidates, "_idle_cpus", lambda: 2.0)   # as if two cores were free
     one = normalize_edges(delaunay_links(xy, split_min_points=10**12), n)
     two = normalize_edges(delaunay_links(xy, split_min_points=8), n)
     monkeypatch.setattr(candidates, "_BACKEND", "qhull")
