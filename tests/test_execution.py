@@ -20,7 +20,6 @@ import numpy as np
 import pytest
 
 from conftest import run_cli
-from test_scenarios import project  # noqa: F401 - the scenario project fixture
 
 distributed = pytest.importorskip("distributed")
 
@@ -62,7 +61,7 @@ def cluster(tmp_path_factory):
         for i in range(2):
             procs.append(subprocess.Popen(
                 [dask_cli, "worker", addr, "--nthreads", "1", "--nworkers", "1",
-                 "--no-dashboard", "--local-directory", str(d / f"w{i}"),
+                 "--no-dashboard", "--no-nanny", "--local-directory", str(d / f"w{i}"),
                  "--host", "127.0.0.1"], env=env, stdout=log, stderr=log))
         with distributed.Client(addr, timeout=f"{BOOT_S}s") as c:
             c.wait_for_workers(2, timeout=BOOT_S)
@@ -71,6 +70,19 @@ def cluster(tmp_path_factory):
         _stop(procs[1:])
         _stop(procs[:1])
         log.close()
+
+
+@pytest.fixture
+def project(tmp_path):
+    """The scenario tests' 40 sites and rasters, with two scenarios (base and a strip)."""
+    import test_scenarios as ts
+
+    path = ts.project.__wrapped__(tmp_path)
+    text = open(path).read()
+    keep = text[:text.index("[scenarios.same]")] + text[text.index("[scenarios.strip]"):
+                                                        text.index("[scenarios.plain]")]
+    open(path, "w").write(keep)
+    return path
 
 
 def _compare(project, out, capsys, *extra):
@@ -93,7 +105,7 @@ def test_compare_same_bytes_embedded_local_workers_and_cluster(project, cluster,
     # the progress of the cluster's tasks reached the progress line, to the last task
     assert "running on 2 local Dask worker processes" in err_l
     assert f"running on Dask cluster at {cluster} (2 workers)" in err_c
-    assert "[mainspan] stability (6 scenarios) 18/18" in err_c
+    assert "[mainspan] stability (2 scenarios) 6/6" in err_c
     # the cluster's workers really ran tasks (Dask's own record of task streams)
     with distributed.Client(cluster, timeout="30s") as c:
         ran = c.run(lambda dask_worker: len(dask_worker.state.log))
@@ -157,3 +169,92 @@ def test_missing_dask_names_the_pip_command(monkeypatch):
     with pytest.raises(InputError, match=r'pip install "dask\[distributed\]"') as e:
         open_engine(workers=2)
     assert "\n" not in str(e.value) and "--workers" in str(e.value)
+
+
+# ------------------------------------------------------------------ link costing in chunks
+def _costing_inputs(tmp_path):
+    """40 sites of the scenario project, a DEM read in 8 x 8 tiles with a nodata hole."""
+    import rasterio
+    from rasterio.transform import from_origin
+
+    from mainspan.graph.candidates import build_candidates
+    from mainspan.ground.costs import CostWeights
+    from mainspan.ground.surfaces import open_surface
+    from mainspan.sites.read import read_sites
+
+    import test_scenarios as ts
+
+    proj = ts.project.__wrapped__(tmp_path)
+    d = os.path.dirname(proj)
+    r, c = np.mgrid[0:ts.NCELL, 0:ts.NCELL]
+    dem = 200 + 25 * np.sin(r / 7.0) * np.cos(c / 9.0)
+    dem[20:26, 30:34] = -9999.0                                    # a hole: impassable links
+    path = os.path.join(d, "dem_hole.tif")
+    with rasterio.open(path, "w", driver="GTiff", height=ts.NCELL, width=ts.NCELL, count=1,
+                       dtype="float64", crs="EPSG:32633", nodata=-9999.0,
+                       transform=from_origin(ts.X0, ts.Y0 + ts.NCELL * ts.CELL, ts.CELL,
+                                             ts.CELL)) as ds:
+        ds.write(dem, 1)
+    sites = read_sites(os.path.join(d, "sites.gpkg"), layer="pts", id_field="id")
+    cands = build_candidates(sites.xy, "delaunay")
+    ter = open_surface(path, working_crs=sites.crs, max_memory_mb=0.004)   # tiled reading
+    kw = dict(working_crs=sites.crs, terrain=ter, land_cost={"base": os.path.join(d,
+              "land_a.tif")}, weights=CostWeights(climb=3.0), node_id=sites.node_id)
+    return sites, cands, ter, kw, proj
+
+
+def _same_costs(a, b):
+    assert list(a.components) == list(b.components)
+    for k in a.components:
+        np.testing.assert_array_equal(a.components[k], b.components[k], err_msg=k)
+    np.testing.assert_array_equal(a.total, b.total)
+    np.testing.assert_array_equal(a.reason_code, b.reason_code)
+    assert a.reason_labels == b.reason_labels and a.reasons == b.reasons
+
+
+def test_chunks_are_tile_aligned_and_price_like_one_call(tmp_path):
+    from mainspan.execution.costing import plan_chunks, price_links
+    from mainspan.ground.costs import price_links as price_once
+
+    sites, cands, ter, kw, _ = _costing_inputs(tmp_path)
+    try:
+        assert ter.tile_shape == (8, 8) and len(cands.edges) > 100
+        parts = plan_chunks(sites.xy, cands.edges, ter, 10)
+        assert len(parts) > 5
+        # a partition of the links; each chunk holds whole tiles, in tile order
+        np.testing.assert_array_equal(np.sort(np.concatenate(parts)),
+                                      np.arange(len(cands.edges)))
+        mid = 0.5 * (sites.xy[cands.edges[:, 0]] + sites.xy[cands.edges[:, 1]])
+        col, row = ter.to_index(mid)
+        tile = (row // 8).astype(int) * 6 + (col // 8).astype(int)
+        spans = [(tile[p].min(), tile[p].max()) for p in parts]
+        assert all(hi < lo2 for (_, hi), (lo2, _) in zip(spans, spans[1:]))
+        one = price_once(sites.xy, cands.edges, **kw)
+        assert one.n_impassable > 0                       # the hole is crossed
+        _same_costs(price_links(sites.xy, cands.edges, chunk_links=10, **kw), one)
+    finally:
+        ter.close()
+
+
+def test_chunked_costing_and_plan_on_the_cluster(cluster, tmp_path, capsys):
+    """Workers open the rasters from their paths and price their chunks: same values, and
+    ``plan --cluster`` writes the same bytes as the embedded plan."""
+    from mainspan.execution import open_engine
+    from mainspan.execution.costing import price_links
+    from mainspan.ground.costs import price_links as price_once
+
+    sites, cands, ter, kw, proj = _costing_inputs(tmp_path)
+    try:
+        one = price_once(sites.xy, cands.edges, **kw)
+        with open_engine(cluster=cluster) as eng:
+            assert not eng.local
+            _same_costs(price_links(sites.xy, cands.edges, chunk_links=10, engine=eng, **kw),
+                        one)
+    finally:
+        ter.close()
+    a, b = tmp_path / "a.gpkg", tmp_path / "b.gpkg"
+    assert run_cli(["plan", proj, "--output", a, "--quiet"], capsys)[0] == 0
+    code, _, err = run_cli(["plan", proj, "--output", b, "--quiet", "--cluster", cluster,
+                            "--chunk-links", "15"], capsys)
+    assert code == 0, err
+    assert open(a, "rb").read() == open(b, "rb").read()

@@ -34,5 +34,7 @@ __all__ = ["Engine", "Embedded", "DaskEngine", "open_engine", "current", "use",
 def engine_from_settings(execution: dict | None) -> Engine:
     """The engine of a checked ``[execution]`` section (embedded when empty)."""
     ex = execution or {}
-    return open_engine(ex.get("workers"), ex.get("cluster"),
-                       connect_timeout_s=ex.get("connect_timeout_s"))
+    eng = open_engine(ex.get("workers"), ex.get("cluster"),
+                      connect_timeout_s=ex.get("connect_timeout_s"))
+    eng.chunk_links = ex.get("chunk_links")
+    return eng

@@ -33,6 +33,8 @@ class Engine:
     kind = "embedded"
     local = True
     n_workers = 1
+    #: Links per link-costing chunk (None: :data:`mainspan.execution.costing.DEFAULT_CHUNK_LINKS`).
+    chunk_links = None
 
     def share(self, obj):
         """A handle of *obj* to put in task arguments in its place.
@@ -145,19 +147,30 @@ class DaskEngine(Engine):
                    for i, item in enumerate(items)]
         pos = {f.key: i for i, f in enumerate(futures)}
         out = [None] * len(items)
+        failed = {}          # task index -> its exception
         done = 0
         try:
             for fut in as_completed(futures):
+                i = pos[fut.key]
+                if failed and i > min(failed):
+                    continue                 # after a failed task: cancelled or not needed
                 try:
-                    out[pos[fut.key]] = fut.result()
+                    out[i] = fut.result()
                 except (KilledWorker, FutureCancelledError) as exc:
                     raise MainspanError(
                         f"a task was lost on the Dask workers ({type(exc).__name__}: {exc}) "
                         f"after the scheduler's retries; check the workers' logs and "
                         f"memory") from None
+                except Exception as exc:  # noqa: BLE001 - raised below, in task order
+                    failed[i] = exc
+                    for f in futures[i + 1:]:
+                        f.cancel()
+                    continue
                 done += 1
                 if say is not None and stage:
                     say(stage, done, len(items))
+            if failed:      # the first failing task in task order, as embedded would raise
+                raise failed[min(failed)]
         finally:
             for f in futures:
                 f.release()

@@ -409,7 +409,8 @@ def plan_layout(sites, settings=None, *, terrain=None, land_cost=None, cost_expr
     (3, 300.0)
     """
     from ..graph.candidates import build_candidates
-    from ..ground.costs import CostWeights, node_elevations, price_links
+    from ..execution.costing import price_links   # dask18: large jobs in chunks (--workers)
+    from ..ground.costs import CostWeights, node_elevations
     from ..settings import PlanSettings
     from ..sites.read import Sites, read_sites
 

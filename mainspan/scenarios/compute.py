@@ -23,6 +23,7 @@ class _Workbench:
             {}, {}, {}, {}, {}, {}
         self.work = {"sites_reads": 0, "candidate_builds": 0, "terrain_pricings": 0,
                      "land_pricings": 0, "raster_opens": 0}
+        self.engine = None      # dask18: large link costings in chunks on this engine
 
     def close(self):
         for s in self.surfaces.values():
@@ -68,7 +69,8 @@ class _Workbench:
 
     def terrain_parts(self, edge_key, xy, edges, sites, plan, weights):
         """Terrain components of *edges* (priced once per terrain setting)."""
-        from ..ground.costs import CostWeights, price_links
+        from ..execution.costing import price_links     # dask18: tile-aligned chunks
+        from ..ground.costs import CostWeights
 
         terrain = plan.get("terrain")
         opts = dict(terrain=None if terrain is None else os.fspath(terrain),
@@ -84,7 +86,7 @@ class _Workbench:
                                     name="terrain")
                 self.work["terrain_pricings"] += 1
             self.terrain[k] = price_links(
-                xy, edges, working_crs=sites.crs, terrain=surf,
+                xy, edges, engine=self.engine, working_crs=sites.crs, terrain=surf,
                 weights=CostWeights(length=0.0, land=0.0, steep_slope_pct=opts["steep"]),
                 on_nodata=opts["on_nodata"], sample_spacing_m=opts["spacing"],
                 raster_crs=opts["raster_crs"])
@@ -92,7 +94,8 @@ class _Workbench:
 
     def land_parts(self, edge_key, xy, edges, sites, plan):
         """Land-cost components of *edges* (priced once per land-cost setting)."""
-        from ..ground.costs import CostWeights, price_links
+        from ..execution.costing import price_links     # dask18: tile-aligned chunks
+        from ..ground.costs import CostWeights
 
         land = plan.get("land_cost")
         named = isinstance(land, dict)
@@ -112,7 +115,7 @@ class _Workbench:
                 src = opened if named else opened["land_cost"]
                 self.work["land_pricings"] += 1
             self.land[k] = price_links(
-                xy, edges, working_crs=sites.crs, land_cost=src, cost_expression=opts["expr"],
+                xy, edges, engine=self.engine, working_crs=sites.crs, land_cost=src, cost_expression=opts["expr"],
                 class_costs=opts["classes"], weights=CostWeights(length=0.0, land=1.0),
                 on_nodata=opts["on_nodata"], raster_crs=opts["raster_crs"],
                 node_id=sites.node_id, refuse_negative=True)
@@ -204,6 +207,7 @@ def run_scenarios(project, *, names=None, progress=None, stability_runs=0, pertu
     from ..execution import current
 
     eng = engine if engine is not None else current()
+    bench.engine = eng
     try:
         jobs = {}
         for name in order:

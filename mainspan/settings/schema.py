@@ -246,7 +246,7 @@ STATIC_SETTINGS = (
     S("execution", "connect_timeout_s", "number", 5.0, "give up reaching --cluster after this "
       "long", unit="s", lo=0.0, lo_open=True),
     S("execution", "chunk_links", "integer", 200000, "link costing of more links than this "
-      "is split into tile-aligned chunks of about this many links, one task each", lo=1000),
+      "is split into tile-aligned chunks of about this many links, one task each", lo=1),
 )
 
 # Units by name ending (longest first); names that carry none are listed below.
