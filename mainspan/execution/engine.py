@@ -267,7 +267,7 @@ def _start_local(n, timeout_s):
     try:
         cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=True,
                                host="127.0.0.1", dashboard_address=":0",
-                               silence_logs=logging.ERROR)
+                               silence_logs=logging.CRITICAL)
     except Exception as exc:  # noqa: BLE001
         raise MainspanError(f"cannot start {n} local Dask workers: "
                             f"{' '.join(str(exc).split())[:200]}") from None
