@@ -133,6 +133,20 @@ def main_task(a):
     res, _ = run("mainspan:plan", {**base, "CANDIDATES": "delaunay+nosuch",
                                    "OUTPUT": os.path.join(w, "bad.gpkg")})
     out["bad"] = res
+    # a filtered layer is not a plain file: mainspan plans a copy of its features
+    from qgis.core import QgsVectorLayer
+    import shutil     # its own copy: QGIS may write to a GeoPackage it opened (the byte test)
+    shutil.copyfile(os.path.join(d, "kestrel_outlets.gpkg"), os.path.join(w, "part_src.gpkg"))
+    part = QgsVectorLayer(os.path.join(w, "part_src.gpkg") + "|layername=outlets",
+                          "kestrel part", "ogr")
+    part.setSubsetString("fid <= 20")
+    QgsProject.instance().addMapLayer(part)
+    os.makedirs(os.path.join(w, "part"))
+    out["subset"], _ = run("mainspan:plan", {"SITES": part.id(), "ID_FIELD": "id",
+                                             "ROLE_FIELD": "role",
+                                             "OUTPUT": os.path.join(w, "part", "part.gpkg")})
+    out["subset"]["n_features"] = part.featureCount()
+    QgsProject.instance().removeMapLayer(part.id())
     # check and compare on the sites alone (no rasters): quick
     sites_only = {k: base[k] for k in ("SITES", "ID_FIELD", "ROLE_FIELD", "DEMAND_FIELD")}
     out["check"], _ = run("mainspan:check", sites_only)

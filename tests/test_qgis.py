@@ -19,6 +19,7 @@ import shutil
 import subprocess
 import sys
 import sysconfig
+import tempfile
 import xml.etree.ElementTree as ET
 import zipfile
 
@@ -209,9 +210,11 @@ def _session(task, tmp, *, with_mainspan=True):
 
 
 @pytest.fixture(scope="module")
-def qgis_run(tmp_path_factory):
+def qgis_run():
     _need_qgis()
-    return _session("main", str(tmp_path_factory.mktemp("qgis")))
+    # a folder of its own: pytest's numbered temp folders are pruned by other pytest runs
+    with tempfile.TemporaryDirectory(prefix="mainspan-qgis-") as tmp:
+        yield _session("main", tmp)
 
 
 def test_provider_lists_algorithms_with_the_schema_parameters(qgis_run):
@@ -343,6 +346,21 @@ def test_export_and_report_from_the_toolbox(qgis_run):
         assert '<meta name="generator" content="mainspan">' in f.read()
 
 
+def test_filtered_layer_is_planned_from_a_copy(qgis_run):
+    import pyogrio
+
+    res, _ = qgis_run
+    sub = res["subset"]
+    assert sub["ok"], sub.get("error")
+    assert sub["n_features"] == 20
+    gpkg = sub["result"]["OUTPUT"]
+    assert pyogrio.read_info(gpkg, layer="nodes")["features"] == 20
+    assert pyogrio.read_info(gpkg, layer="links")["features"] == 19      # a tree: n - 1 links
+    ri = pyogrio.read_dataframe(gpkg, layer="run_info")
+    sites = dict(zip(ri.iloc[:, 0], ri.iloc[:, 1]))["sites"]
+    assert sites.endswith("sites.gpkg") and "kestrel_outlets" not in sites
+
+
 def test_check_and_compare_from_the_toolbox(qgis_run):
     import pyogrio
 
@@ -358,9 +376,10 @@ def test_check_and_compare_from_the_toolbox(qgis_run):
     assert {"links_base", "links_nearest", "scenario_summary"} <= names
 
 
-def test_plugin_without_mainspan_names_the_pip_command(tmp_path):
+def test_plugin_without_mainspan_names_the_pip_command():
     _need_qgis()
-    res, _ = _session("missing", str(tmp_path), with_mainspan=False)
+    with tempfile.TemporaryDirectory(prefix="mainspan-qgis-") as tmp:
+        res, _ = _session("missing", tmp, with_mainspan=False)
     assert res["mainspan_importable"] is False
     assert res["plugin"][0] == PLUGIN_NAME and res["provider"] is False
     assert len(res["messages"]) == 1                 # one message, not one per algorithm
