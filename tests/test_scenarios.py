@@ -304,17 +304,32 @@ def test_write_scenarios(sset, tmp_path):
 def test_report_sections(sset, tmp_path):
     from mainspan.report.html import write_report
     from mainspan.scenarios import report_sections
+    from mainspan.scenarios.report import decision_sections, detail_sections, regret_table
 
     secs = report_sections(sset)
-    assert [t for t, _ in secs] == ["Scenario comparison", "Scenario layouts",
-                                    "Cost breakdown by scenario"]
+    assert [t for t, _ in secs] == ["Scenario comparison: the decision", "Scenario layouts",
+                                    "Cost breakdown by scenario", "Scenario parameters"]
     assert secs[1][1].count("data:image/png;base64,") == 1
-    path = write_report(sset["base"], tmp_path / "r.html", extra_sections=secs)
+    path = write_report(sset["base"], tmp_path / "r.html", lead_sections=decision_sections(sset),
+                        extra_sections=detail_sections(sset))
     text = open(path, encoding="utf-8").read()
     assert "Scenario layouts" in text and "layout \\ costs" in text
+    # the decision comes before the base layout's own report, the parameters last
+    assert text.index("the decision") < text.index("<h2>Summary</h2>") \
+        < text.index("Scenario parameters")
     # the regret matrix as printed: own cost of the strip layout in bold
     own = sset.regret[sset.names.index("strip"), sset.names.index("strip")]
     assert f"<b>{own:,.0f}</b>" in text
+    # no percentage between totals under different cost functions
+    assert "vs base" not in text and "not a saving" in text
+    # the robust layout named is the one with the least worst-case extra cost, computed here
+    # directly from the regret matrix (cost of layout i under j minus j's own)
+    reg = np.asarray(sset.regret, float)
+    extra = reg - np.diag(reg)[None, :]
+    assert np.allclose(regret_table(sset), extra, equal_nan=True)
+    worst = np.nanmax(extra, axis=1)
+    best = sset.names[int(np.nanargmin(worst))]
+    assert f"Most robust layout: {best}</b>" in text
 
 
 def test_unknown_scenario_name(project):

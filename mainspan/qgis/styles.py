@@ -47,8 +47,9 @@ def _has_own_style(path, table):
     except sqlite3.Error:
         return False
     try:
+        # hand16: the style mainspan's writer saves (writers/styles.py) is not the user's own
         row = con.execute("SELECT count(*) FROM layer_styles WHERE f_table_name = ? AND "
-                          "useAsDefault", (table,)).fetchone()
+                          "useAsDefault AND styleName <> 'mainspan'", (table,)).fetchone()
         return bool(row and row[0])
     except sqlite3.Error:
         return False

@@ -242,9 +242,11 @@ def _sections(layout, n_sections, ids, say):
     from .plots import figure_bytes, longest_paths
     from .section import fit_exaggeration, long_section, section_data
 
-    paths = longest_paths(layout, k=n_sections)
-    if not paths:
+    full = longest_paths(layout, k=n_sections)
+    if not full:
         return "<p>No links.</p>"
+    # a sheet holds a readable number of links: long paths are shown from their start
+    paths = [p[:MAX_SECTION_LINKS + 1] for p in full]
     # one vertical exaggeration for every section of the report: the smallest that fits all
     vx = min(fit_exaggeration(section_data(layout, p)) for p in paths)
     secs = [f'<p class="sub">Every section is drawn at vertical exaggeration ×{vx:g}.</p>']
@@ -253,8 +255,12 @@ def _sections(layout, n_sections, ids, say):
         what = "longest path" if k == 1 else "branch"
         f = long_section(layout, path=path, vertical_exaggeration=vx,
                          title=f"{what.capitalize()} {ids[path[0]]} → {ids[path[-1]]}")
-        cap = (f"{what} {ids[path[0]]} → {ids[path[-1]]}, {len(path) - 1} links, "
-               f"vertical exaggeration ×{vx:g}")
+        n_all = len(full[k - 1]) - 1
+        part = (f"{len(path) - 1} links" if n_all == len(path) - 1 else
+                f"first {len(path) - 1} of {n_all} links to {ids[full[k - 1][-1]]} (the whole "
+                f"path: mainspan export LAYOUT --to FILE.dxf --section --node "
+                f"{ids[full[k - 1][-1]]})")
+        cap = f"{what} {ids[path[0]]} → {ids[path[-1]]}, {part}, vertical exaggeration ×{vx:g}"
         fmt, mime = ("svg", "image/svg+xml") if len(path) <= 60 else ("png", "image/png")
         secs.append("<figure>" + _img(figure_bytes(f, fmt), mime, f"long-section-{k}",
                                       f"long section: {cap}")
@@ -278,12 +284,30 @@ def _csv_namer(csv_base, layout):
     return csv
 
 
+def _extra(sections, start, cls):
+    out = []
+    for k, item in enumerate(sections, start=start):
+        try:
+            sec_title, sec_html = item
+        except (TypeError, ValueError):
+            from ..errors import InputError
+
+            raise InputError(f"sections[{k - start}]: expected a (title, html) pair, got "
+                             f"{type(item).__name__}") from None
+        # the section body is trusted HTML from another mainspan module; the title is escaped
+        out.append(f'<section class="{cls}" id="extra-{k}"><h2>{_e(sec_title)}</h2>'
+                   f"{sec_html}</section>")
+    return out
+
+
 def report_html(layout, *, title=None, extra_sections=(), n_sections=3, csv_base=None,
-                progress=None):
+                progress=None, lead_sections=()):
     """The report as a ``str`` (see :func:`write_report`).
 
     ``csv_base``: file-name stem of the CSV tables written beside the report
-    (named under capped tables); ``progress(stage)``: called per writing stage.
+    (named under capped tables); ``progress(stage)``: called per writing stage;
+    ``lead_sections``: ``(title, html)`` pairs placed right after the cautions
+    (a comparison's decision), numbered after ``extra_sections``.
     """
     from .planmap import plan_map
     from .plots import figure_bytes
@@ -298,6 +322,7 @@ def report_html(layout, *, title=None, extra_sections=(), n_sections=3, csv_base
             f"{_e(info.get('version', ''))}</p>{T.title_block(layout, title)}</header>"]
     body.append('<section id="cautions" class="cautions"><h2>Cautions</h2><ul>'
                 + "".join(f"<li>{_e(c)}</li>" for c in CAUTIONS) + "</ul></section>")
+    body += _extra(lead_sections, len(extra_sections) + 1, "lead")
     say("report: summary and costs")
     body.append(f"<section><h2>Summary</h2>{_summary(layout)}</section>")
     body.append(f"<section><h2>Cost</h2>{T.cost_section(layout)}</section>")
@@ -323,17 +348,7 @@ def report_html(layout, *, title=None, extra_sections=(), n_sections=3, csv_base
         body.append(f"<section><h2>Schedule of structures and fittings</h2>{struct}</section>")
     body.append(f'<section class="newpage"><h2>Run parameters and inputs</h2>'
                 f"{T.parameters(layout)}{_inputs(layout)}</section>")
-    for k, item in enumerate(extra_sections, start=1):
-        try:
-            sec_title, sec_html = item
-        except (TypeError, ValueError):
-            from ..errors import InputError
-
-            raise InputError(f"extra_sections[{k - 1}]: expected a (title, html) pair, got "
-                             f"{type(item).__name__}") from None
-        # the section body is trusted HTML from another mainspan module; the title is escaped
-        body.append(f'<section class="newpage" id="extra-{k}"><h2>{_e(sec_title)}</h2>'
-                    f"{sec_html}</section>")
+    body += _extra(extra_sections, 1, "newpage")
     body.append(f"<footer>Written by mainspan {_e(info.get('version', ''))}. "
                 f"{_e(CAUTIONS[0])}</footer>")
     return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
@@ -358,12 +373,14 @@ def _csv_tables(layout):
     return out
 
 
+#: Links of one long section in the report (longer paths are shown from their start).
+MAX_SECTION_LINKS = 80
 #: Sites above which write_report prints its stages to stderr when no progress is given.
 PROGRESS_FROM_SITES = 20_000
 
 
 def write_report(layout, path, *, overwrite=False, title=None, extra_sections=(),
-                 progress=None):
+                 progress=None, lead_sections=()):
     """Write the self-contained HTML review report of a layout.
 
     Parameters
@@ -380,6 +397,8 @@ def write_report(layout, path, *, overwrite=False, title=None, extra_sections=()
     extra_sections : sequence of (str, str)
         ``(title, html)`` pairs appended after the run parameters (e.g. a
         scenario comparison).  Titles are escaped; the HTML is inserted as given.
+    lead_sections : sequence of (str, str)
+        Sections placed first, right after the cautions (a comparison's decision).
     progress : callable or bool, optional
         ``progress(stage)`` per writing stage; ``False`` for none.  By default
         the stages are printed to stderr for layouts above
@@ -397,7 +416,7 @@ def write_report(layout, path, *, overwrite=False, title=None, extra_sections=()
     say = progress or None
     stem = os.path.splitext(os.path.basename(os.fspath(path)))[0]
     text = report_html(layout, title=title, extra_sections=extra_sections, csv_base=stem,
-                       progress=say)
+                       progress=say, lead_sections=lead_sections)
     csv = _csv_namer(stem, layout)
     folder = os.path.dirname(os.path.abspath(os.fspath(path)))
     for kind, cols in _csv_tables(layout).items():

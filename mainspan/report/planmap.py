@@ -23,6 +23,7 @@ import os
 import numpy as np
 
 from ..errors import InputError
+from ..writers.styles import SIZE_COLOURS
 
 __all__ = ["plan_map", "hillshade", "SIZE_COLOURS", "CHECK_MARKERS", "LABEL_LIMIT",
            "root_nodes", "check_kinds"]
@@ -32,10 +33,6 @@ LABEL_LIMIT = 400
 #: Links above which link ids and sizes are left off (they would overlap).
 LINK_LABEL_LIMIT = 160
 
-#: Our colours for pipe-size classes, smallest first (chosen for contrast on a grey
-#: hillshade and in greyscale print; cycled when there are more classes).
-SIZE_COLOURS = ("#6fa8dc", "#2f7f5f", "#c98b12", "#8e3b8e", "#b8352a", "#1b3f8b", "#5a8f1f",
-                "#d0632c", "#3d7f99", "#7a4b2a", "#a02c5b", "#23524a", "#544e9c", "#8a8a24")
 #: One marker per failed-check kind, in the order the kinds are first sorted.
 CHECK_MARKERS = ("X", "D", "s", "P", "v", "h", "<", "p", ">", "*", "d", "8")
 _CHECK_COLOURS = ("#d11f1f", "#e0761a", "#8b1fd1", "#b5006b", "#7a3b00", "#d11f8f")
@@ -268,6 +265,7 @@ def plan_map(layout, *, background=None, figsize=None, title=None, contours=True
         ``mainspan_north_xy`` (axes fraction of the north arrow).
     """
     _plt()
+    import matplotlib as mpl
     import matplotlib.patheffects as pe
     from matplotlib.collections import LineCollection
     from matplotlib.figure import Figure
@@ -298,17 +296,17 @@ def plan_map(layout, *, background=None, figsize=None, title=None, contours=True
         sizes = np.unique(size[np.isfinite(size)])
         k = np.searchsorted(sizes, np.nan_to_num(size, nan=sizes[0]))
         pal = np.array(SIZE_COLOURS)
-        colours = pal[k % len(pal)]
+        rgba = np.array([mpl.colors.to_rgba(c) for c in pal])      # convert once, index after
         widths = 1.0 + 2.6 * k / max(len(sizes) - 1, 1)
-        ax.add_collection(LineCollection(segs, colors=list(colours), linewidths=widths,
-                                         zorder=3, rasterized=big))
+        ax.add_collection(LineCollection(segs, colors=rgba[k % len(pal)], linewidths=widths,
+                                         zorder=3, rasterized=big, antialiaseds=not big))
         lab = "DN" if scol == "nominal_mm" else "ID "
         for j, s in enumerate(sizes):
             ax.plot([], [], color=pal[j % len(pal)], lw=1.0 + 2.6 * j / max(len(sizes) - 1, 1),
                     label=f"{lab}{s:g} mm")
     else:
         ax.add_collection(LineCollection(segs, colors="#1b3f8b", linewidths=1.4, zorder=3,
-                                         rasterized=big))
+                                         rasterized=big, antialiaseds=not big))
         ax.plot([], [], color="#1b3f8b", lw=1.4, label="planned main")
 
     # flow arrows at mid-link, pointing the way water flows
@@ -352,9 +350,11 @@ def plan_map(layout, *, background=None, figsize=None, title=None, contours=True
     from_role = bool(n) and bool(np.isin(role[roots], ["source", "outlet"]).all())
     other = np.ones(n, bool)
     other[roots] = False
-    ax.scatter(xy[other, 0], xy[other, 1], s=12 if not big else 1.5, c="#ffffff",
-               edgecolors="#202020", linewidths=0.6, zorder=6, label="site",
-               rasterized=big)
+    if big:             # one pixel per site: a scatter of 10^5 outlined markers is slow
+        ax.plot(xy[other, 0], xy[other, 1], ",", color="#202020", zorder=6, label="site")
+    else:
+        ax.scatter(xy[other, 0], xy[other, 1], s=12, c="#ffffff", edgecolors="#202020",
+                   linewidths=0.6, zorder=6, label="site")
     if len(roots):
         rlabel = ("root (" + "/".join(sorted(set(role[roots]))) + ")" if from_role else
                   "root (no site had a source role)")
@@ -368,8 +368,8 @@ def plan_map(layout, *, background=None, figsize=None, title=None, contours=True
         for tab, where in ((lk, "link"), (nd, "node")):
             if "checks" not in tab:
                 continue
-            col = np.asarray(tab["checks"]).astype(str)
-            hit = np.array([kname in s.split(";") for s in col], bool)
+            col = np.char.add(np.char.add(";", np.asarray(tab["checks"]).astype(str)), ";")
+            hit = np.char.find(col, f";{kname};") >= 0
             if not hit.any():
                 continue
             pts = segs[hit].mean(1) if where == "link" else xy[hit]

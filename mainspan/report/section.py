@@ -316,23 +316,22 @@ def long_section(layout, *, path=None, to_node=None, longest=True, figsize=(11.0
         ax.plot(d["pipe_x"], d["pipe_z"], color="#17457a", lw=1.5, label=lbl)
         ax.plot(d["pipe_x"], d["crown_z"], color="#17457a", lw=0.8, ls="--",
                 label="crown" if lbl == "invert" else "pipe crown")
+    from matplotlib.collections import LineCollection
+
     if d["grade_line"] is not None:
         gl = d["grade_line"]
-        for j in range(len(gl)):
-            ax.plot(ch[j:j + 2], gl[j], color="#b3262d", lw=1.4,
-                    label="hydraulic grade line" if j == 0 else None)
-    done = set()
-    for c, lo, hi, kind in d["structures"]:
-        if not (np.isfinite(lo) and np.isfinite(hi)):
-            continue
-        lab = None
-        key = "access point" if kind == "access point" else "structure"
-        if key not in done:
-            lab = "access point in link" if key == "access point" else "structure at node"
-            done.add(key)
-        ax.plot([c, c], [lo, hi], color="#404040" if key == "structure" else "#8a8a8a",
-                lw=3.2 if key == "structure" else 2.0, solid_capstyle="butt", zorder=4,
-                label=lab)
+        # one polyline broken between links (the grade steps at pumps and valves)
+        gx = np.column_stack([ch[:-1], ch[1:], np.full(len(gl), np.nan)]).ravel()
+        gz = np.column_stack([gl, np.full(len(gl), np.nan)]).ravel()
+        ax.plot(gx, gz, color="#b3262d", lw=1.4, label="hydraulic grade line")
+    for key, colour, lw, lab in (("structure", "#404040", 3.2, "structure at node"),
+                                 ("access point", "#8a8a8a", 2.0, "access point in link")):
+        segs = [((c, lo), (c, hi)) for c, lo, hi, kind in d["structures"]
+                if (kind == "access point") == (key == "access point")
+                and np.isfinite(lo) and np.isfinite(hi)]
+        if segs:
+            ax.add_collection(LineCollection(segs, colors=colour, linewidths=lw, zorder=4,
+                                             capstyle="butt", label=lab))
     if d["fittings"]:
         from .planmap import _FEATURE_STYLE
 
@@ -353,8 +352,9 @@ def long_section(layout, *, path=None, to_node=None, longest=True, figsize=(11.0
     npath = len(d["path"])
     every = max(1, int(math.ceil(npath / 30)))
     top = yc + yspan / 2
+    ax.add_collection(LineCollection([((c, -1e9), (c, 1e9)) for c in ch], colors="#9a9a9a",
+                                     linewidths=0.5, linestyles=":"))
     for j, node in enumerate(d["path"]):
-        ax.axvline(ch[j], color="#9a9a9a", lw=0.5, ls=":")
         if j % every and j != npath - 1:
             continue
         ax.annotate(ids[node], (ch[j], top), xytext=(0, -3), textcoords="offset points",
@@ -373,6 +373,8 @@ def long_section(layout, *, path=None, to_node=None, longest=True, figsize=(11.0
 
 
 def _draw_bands(fig, d, xlim, every):
+    from matplotlib.collections import LineCollection
+
     rows = band_rows(d)
     bx = fig.add_axes(list(_BAND_BOX))
     bx.set_xlim(*xlim)
@@ -403,6 +405,8 @@ def _draw_bands(fig, d, xlim, every):
                     continue            # too short to carry a number; the CSV has it
                 bx.text((ch[j] + ch[j + 1]) / 2, r + 0.5, v, ha="center", va="center",
                         fontsize=6, clip_on=True)
-                bx.plot([ch[j + 1], ch[j + 1]], [r, r + 1], color="#999999", lw=0.4)
-    for j in range(0, npath, every):
-        bx.plot([ch[j], ch[j]], [0, 0.25], color="#555555", lw=0.5)
+            bx.add_collection(LineCollection([((c, r), (c, r + 1)) for c in ch[1:]],
+                                             colors="#999999", linewidths=0.4))
+    bx.add_collection(LineCollection([((ch[j], 0), (ch[j], 0.25))
+                                      for j in range(0, npath, every)],
+                                     colors="#555555", linewidths=0.5))

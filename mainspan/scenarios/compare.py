@@ -7,7 +7,7 @@ import sys
 
 from .compute import run_scenarios
 from .output import layer_names, write_scenarios
-from .report import report_sections
+from .report import decision_sections, detail_sections
 
 __all__ = ["compare_cli", "execution_settings"]
 
@@ -79,7 +79,8 @@ def compare_cli(args):
         from ..report.html import write_report
         write_report(sset["base"], rep, overwrite=rep_overwrite,
                      title=f"Scenario comparison: {os.path.basename(proj.path)}",
-                     extra_sections=report_sections(sset))
+                     lead_sections=decision_sections(sset),
+                     extra_sections=detail_sections(sset))
         print(f"report          {rep}")
     if any(sset[n].system for n in sset.names):
         from ..messages import CAUTION

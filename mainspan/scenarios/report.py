@@ -10,7 +10,8 @@ import numpy as np
 from .pricing import _SUMMARY_TERMS
 from .tables import same_candidates
 
-__all__ = ["report_sections"]
+__all__ = ["report_sections", "decision_sections", "detail_sections", "regret_table",
+           "stability_rows"]
 
 # ------------------------------------------------------------------------------ report
 def _png(fig):
@@ -94,50 +95,131 @@ def _bars_html(sset):
     return _png(fig)
 
 
-def _table_html(sset):
+def _num(v, fmt="{:,.0f}"):
+    v = float(v)
+    return "n/a" if np.isnan(v) else ("impassable" if np.isinf(v) else fmt.format(v))
+
+
+def regret_table(sset):
+    """``extra[i, j]``: what choosing layout i costs over scenario j's own layout, priced
+    with scenario j's link costs (NaN where the scenarios do not share candidates)."""
+    reg = np.asarray(sset.regret, float)
+    own = np.diag(reg)
+    return reg - own[None, :]
+
+
+def stability_rows(sset):
+    """Per scenario: runs, mean and least share of runs keeping each tree link, and the
+    number of tree links kept by fewer than half the runs (None without runs)."""
+    rows = {}
+    for n in sset.names:
+        r = sset.results[n]
+        if r.stability is None or not r.runs:
+            rows[n] = None
+            continue
+        cidx = np.asarray(r.layout.links["candidate_index"], np.int64)
+        st = np.asarray(r.stability, float)[cidx]
+        rows[n] = (int(r.runs), float(st.mean()) if st.size else 1.0,
+                   float(st.min()) if st.size else 1.0, int((st < 0.5).sum()))
+    return rows
+
+
+def _decision_html(sset):
     s = sset.summary
     names = list(s["scenario"])
     esc = html.escape
-
-    def num(v, fmt="{:,.1f}"):
-        v = float(v)
-        return "n/a" if np.isnan(v) else ("impassable" if np.isinf(v) else fmt.format(v))
-
-    desc = "".join(f"<li><b>{esc(n)}</b>: {esc(str(d)) or '(no description)'}</li>"
-                   for n, d in zip(names, s["description"]))
-    cols = ("scenario", "links", "length m", "cost", "vs base", "Jaccard", "added",
-            "removed", "failed checks")
+    extra = regret_table(sset)
+    worst = np.where(np.isnan(extra), -np.inf, extra).max(axis=1)
+    comparable = ~np.isnan(extra).all(axis=1)
+    stab = stability_rows(sset)
+    out = []
+    if comparable.any() and np.isfinite(worst[comparable]).any():
+        best = int(np.flatnonzero(comparable)[np.argmin(worst[comparable])])
+        out.append(f'<p id="scenario-decision"><b>Most robust layout: {esc(names[best])}</b> — '
+                   f"its largest extra cost over the best layout of any scenario, each priced "
+                   f"with that scenario's own link costs, is {_num(worst[best])}.</p>")
+    else:
+        out.append('<p id="scenario-decision">The scenarios do not share candidate links, so '
+                   "their layouts cannot be priced under each other's costs; compare them on "
+                   "their own terms below.</p>")
+    out.append('<p class="sub">Each total below is under that scenario\'s own cost function; '
+               "totals of different scenarios are priced differently and their difference is "
+               "not a saving. Compare layouts down a column of the regret table instead.</p>")
+    cols = ("scenario", "links", "length (m)", "total under its own costs",
+            "largest extra cost (regret)", "under scenario", "links shared with base",
+            "failed checks", "stability")
     rows = []
-    base_cost = float(s["total_cost"][0])
     for i, n in enumerate(names):
-        rel = (float(s["total_cost"][i]) / base_cost - 1) * 100 if base_cost else float("nan")
-        added = s["n_added"][i]
-        cells = (esc(n), str(s["n_links"][i]), num(s["total_length_m"][i]),
-                 num(s["total_cost"][i]), num(rel, "{:+.1f} %"),
-                 num(s["jaccard_base"][i], "{:.3f}"),
-                 str(added) if added >= 0 else "n/a",
-                 str(s["n_removed"][i]) if added >= 0 else "n/a", str(s["failed_checks"][i]))
-        rows.append("<tr>" + "".join(f"<td>{c}</td>" for c in cells) + "</tr>")
-    summary = (f"<ul>{desc}</ul><div style=\"overflow-x:auto\"><table><thead><tr>"
+        j = int(np.nanargmax(np.where(np.isnan(extra[i]), -np.inf, extra[i]))) \
+            if comparable[i] else None
+        st = stab.get(n)
+        st_txt = ("not run" if st is None else
+                  f"{st[0]} runs: links kept {st[1] * 100:.0f} % on average, "
+                  f"{st[3]} link(s) in fewer than half")
+        jac = s["jaccard_base"][i]
+        cells = (esc(n), f"{s['n_links'][i]:,}", _num(s["total_length_m"][i], "{:,.1f}"),
+                 _num(s["total_cost"][i], "{:,.2f}"),
+                 _num(worst[i]) if comparable[i] else "n/a",
+                 esc(names[j]) if j is not None and worst[i] > 0 else "—",
+                 "n/a" if np.isnan(jac) else f"{jac * 100:.0f} %", str(s["failed_checks"][i]),
+                 esc(st_txt))
+        rows.append("<tr>" + "".join(
+            f'<td class="num">{c}</td>' if k in (1, 2, 3, 4) else f"<td>{c}</td>"
+            for k, c in enumerate(cells)) + "</tr>")
+    out.append('<div class="wide"><table id="scenario-decision-table"><thead><tr>'
                + "".join(f"<th>{c}</th>" for c in cols) + "</tr></thead><tbody>"
                + "".join(rows) + "</tbody></table></div>")
     head = "".join(f"<th>{esc(n)}</th>" for n in names)
     body = "".join(
         f"<tr><th>{esc(a)}</th>" + "".join(
-            (f"<td><b>{num(sset.regret[i, j], '{:,.0f}')}</b></td>" if i == j else
-             f"<td>{num(sset.regret[i, j], '{:,.0f}')}</td>") for j in range(len(names)))
+            (f"<td class=\"num\"><b>{_num(sset.regret[i, j])}</b></td>" if i == j else
+             f"<td class=\"num\">{_num(sset.regret[i, j])}<br><small>+{_num(extra[i, j])}"
+             "</small></td>") for j in range(len(names)))
         + "</tr>" for i, a in enumerate(names))
-    regret = ("<p>Cost of each layout (row) priced with each scenario's link costs (column); "
-              "the own costs are in bold. Where scenarios share candidate links, each "
-              "scenario's own layout is the cheapest in its column, so the difference down a "
-              "column is what choosing another scenario's layout would cost.</p>"
-              f"<div style=\"overflow-x:auto\"><table><thead><tr><th>layout \\ costs</th>"
-              f"{head}</tr></thead><tbody>{body}</tbody></table></div>")
-    return summary + regret
+    out.append("<h3>Regret</h3><p>Cost of each layout (row) priced with each scenario's link "
+               "costs (column); the own costs in bold, and under each the extra cost over "
+               "the column's own layout. Where scenarios share candidate links, each "
+               "scenario's own layout is the cheapest in its column.</p>"
+               f'<div class="wide"><table id="regret"><thead><tr><th>layout \\ costs</th>'
+               f"{head}</tr></thead><tbody>{body}</tbody></table></div>")
+    if sset.stability_runs:
+        out.append(f"<h3>Stability</h3><p>{sset.stability_runs} run(s) per scenario with land "
+                   f"cost perturbed ±{sset.perturb_pct:g} % per link (seed {sset.seed}); a "
+                   "link kept in fewer than half the runs is one the choice of layout is not "
+                   "sure about.</p>")
+    return "".join(out)
+
+
+def _parameters_html(sset):
+    s = sset.summary
+    esc = html.escape
+    items = []
+    for n, d in zip(s["scenario"], s["description"]):
+        r = sset.results[n]
+        sets = "; ".join(f"[{sec}] " + ", ".join(f"{k} = {v}" for k, v in sorted(vals.items()))
+                         for sec, vals in sorted(r.settings.items())
+                         if isinstance(vals, dict) and vals and sec != "output")
+        items.append(f"<li><b>{esc(n)}</b>: {esc(str(d)) or '(no description)'}"
+                     f"<br><small class=\"mono\">{esc(sets)}</small></li>")
+    wk = sset.work
+    return (f"<ul>{''.join(items)}</ul><p class=\"sub\">Shared work: {wk['sites_reads']} sites "
+            f"read(s), {wk['candidate_builds']} candidate build(s), {wk['terrain_pricings']} "
+            f"terrain and {wk['land_pricings']} land-cost pricing(s) for "
+            f"{len(sset.names)} scenarios.</p>")
+
+
+def decision_sections(sset):
+    """The sections that lead a comparison report: the decision, regret and stability."""
+    return [("Scenario comparison: the decision", _decision_html(sset))]
+
+
+def detail_sections(sset):
+    """The sections after the base report: layouts, cost terms, then the parameters."""
+    return [("Scenario layouts", _maps_html(sset)),
+            ("Cost breakdown by scenario", _bars_html(sset)),
+            ("Scenario parameters", _parameters_html(sset))]
 
 
 def report_sections(sset):
-    """``(title, html)`` sections comparing the scenarios, for ``write_report``."""
-    return [("Scenario comparison", _table_html(sset)),
-            ("Scenario layouts", _maps_html(sset)),
-            ("Cost breakdown by scenario", _bars_html(sset))]
+    """``(title, html)`` sections comparing the scenarios, decision first, parameters last."""
+    return decision_sections(sset) + detail_sections(sset)

@@ -253,6 +253,8 @@ def write_layers(path, layers: dict, *, overwrite=False):
                         kw["dataset_options"] = {"VERSION": GPKG_VERSION}   # GDALs read quietly
                     pyogrio.write_dataframe(df, tmp, layer=name, driver="GPKG", use_arrow=True,
                                             layer_options={"DESCRIPTION": _DESC + rid}, **kw)
+                from .styles import write_styles        # hand16: layer styles of our own
+                write_styles(tmp, layers)
                 replace_into(tmp, target)
     except (OverwriteError, DataFileError):
         raise
