@@ -308,3 +308,75 @@ def test_forest_each_source_sized_and_priced():
     q = r.quantities
     stations = [i for c, i in zip(q["category"], q["item"]) if c == "pump station"]
     assert len(stations) == 2 and all(" at " in s for s in stations)
+
+
+def random_forest(seed, n, P, R):
+    """A forest of R random trees with free, priced and capped source heads (caps often binding)."""
+    rng = np.random.default_rng(seed)
+    net0, loss, cost, ok, req, _ = random_problem(seed, n, P, True)
+    # cut the tree into R trees: nodes 1..R-1 become roots (their parent links dropped)
+    keep = net0.to_node >= R
+    net = rooted_network(n, net0.from_node[keep], net0.to_node[keep], roots=np.arange(R))
+    L = net.n_links
+    loss, cost, ok = loss[:L], cost[:L], ok[:L]
+    w = rng.uniform(0, 5, R) * (rng.random(R) < 0.8)          # some sources at zero energy price
+    least = req + 0.0
+    # caps between the least head a tree needs and well above it, so some bind and some do not
+    kw = dict(root_weight=w, root_cap_m=float(req.max()) + rng.uniform(5, 60, R))
+    return net, loss, cost, ok, req, kw, least
+
+
+@settings(max_examples=40, deadline=None, derandomize=True)
+@given(seed=st.integers(0, 10_000), n=st.integers(6, 40), P=st.integers(2, 7), R=st.integers(2, 4))
+def test_tree_method_matches_highs_on_forests_with_binding_caps(seed, n, P, R):
+    # scipy.optimize.milp (HiGHS) on the whole forest; the tree method folds steep segments per source
+    # and escalates the fold's price where a cap binds, so capped and uncapped sources are both covered
+    net, loss, cost, ok, req, kw, _ = random_forest(seed, n, P, R)
+    t = least_cost_tree(net, loss, cost, ok, req, **kw)
+    if not t.feasible.all():
+        with pytest.raises(InputError):
+            least_cost_highs(net, loss, cost, ok, req, **kw)
+        return
+    h = least_cost_highs(net, loss, cost, ok, req, **kw)
+    assert t.objective == pytest.approx(h.objective, rel=1e-6, abs=1e-9)
+    assert np.all(t.root_head_m <= kw["root_cap_m"] + 1e-9)
+    assert np.all(heads_from(net, t, loss) >= req - 1e-7)
+
+
+def test_solving_some_sources_again_keeps_the_others():
+    # solve_roots/previous: re-solving source 1 alone, on a result where it was solved with other
+    # pipes allowed, gives the same trees as one solve of everything
+    from mainspan.hydraulics.sizing import merge_trees, tree_objectives
+
+    net, loss, cost, ok, req, kw, _ = random_forest(11, 30, 5, 3)
+    full = least_cost_tree(net, loss, cost, ok, req, **kw)
+    ok2 = ok.copy()
+    ok2[:, -1] = False                                         # a different problem for every source
+    ok2[~ok2.any(axis=1), 0] = True
+    other = least_cost_tree(net, loss, cost, ok2, req, **kw)
+    again = least_cost_tree(net, loss, cost, ok, req, **kw, solve_roots=[False, True, False], previous=other)
+    per_full, per_other, per_again = (tree_objectives(net, cost, x, kw["root_weight"]) for x in (full, other, again))
+    assert per_again[1] == pytest.approx(per_full[1]) and per_again[[0, 2]] == pytest.approx(per_other[[0, 2]])
+    mixed = merge_trees(net, loss, cost, other, full, [False, True, False], kw["root_weight"])
+    assert mixed.objective == pytest.approx(again.objective)
+    assert mixed.objective == pytest.approx(per_again.sum())
+
+
+def test_binding_classes_say_what_is_proved():
+    # the valley case: without class limits the cheap PN6 pipes are chosen, but they cannot hold the
+    # valley's static head, so classes bind; the summary says what is proved, and the relaxation's
+    # objective bounds the design's from below (a relaxation can only be cheaper)
+    cat = PipeCatalog(name=["A110 PN6", "A110 PN16", "A160 PN6", "A160 PN16"], nominal_mm=[110, 110, 160, 160],
+                      inner_mm=[101.6, 90.0, 147.6, 130.8], roughness_mm=[0.007] * 4, hw_c=[150] * 4,
+                      rating_m=[61.2, 163.2, 61.2, 163.2], cost_per_m=[8.0, 14.0, 16.0, 28.0], material=["PE100"] * 4)
+    case = dict(xy=[[0, 0], [500, 0], [1000, 0]], elevation_m=[100.0, 40.0, 99.0], demand_lps=[0.0, 0.0, 6.0],
+                node_id=["S", "V", "H"], from_node=[0, 1], to_node=[1, 2], length_m=[500.0, 500.0],
+                surface_length_m=[500.0, 500.0], roots=[0])
+    b = design_network("pressure", settings=DesignSettings(pressure_catalog=cat, surge_check=False), **case)
+    assert b.summary["sizing_classes_bind"] and b.summary["sizing_proof"].startswith("classes bind")
+    assert b.summary["sizing_lower_bound"] <= b.summary["sizing_objective"] + 1e-9
+    assert b.summary["sizing_gap_pct"] >= 0.0
+    flat = dict(case, elevation_m=[100.0, 100.0, 99.0])
+    r = design_network("pressure", settings=DesignSettings(pressure_catalog=cat, surge_check=False), **flat)
+    assert not r.summary["sizing_classes_bind"] and r.summary["sizing_proof"].startswith("optimal")
+    assert "sizing_lower_bound" not in r.summary

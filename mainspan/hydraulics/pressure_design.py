@@ -26,9 +26,16 @@ Choices written down
 * Split links: the larger bore is laid at the upstream end.
 * A free source head is chosen with the pumping energy's present value
   (``energy_pv_per_kw`` per kW of shaft power, ``pump_efficiency``).  When
-  pressure classes bind, the admissible classes are fixed at the head
-  reached and the sizing repeated (at most 10 rounds); each round is exact
-  for its classes and never costs more than the last.
+  pressure classes bind, each source's admissible classes are fixed at the
+  head it reached and its tree sized again (at most 10 rounds; only the
+  sources whose classes changed), from two starts, the cheaper kept per
+  source.  What is proved is written to ``summary["sizing_proof"]`` (and so
+  to ``run_info``): *optimal* when no class binds; otherwise each source's
+  sizing is optimal for the classes fixed at its head, and the optimum lies
+  between ``sizing_lower_bound`` -- the sizing without class limits, a
+  relaxation, hence a proven lower bound -- and the design's objective
+  (``sizing_gap_pct``).  It is not a proof of global optimality: a head
+  between two class limits that no round visits is not examined.
 """
 
 from __future__ import annotations
@@ -46,7 +53,9 @@ from .sizing import (
     least_cost_highs,
     least_cost_tree,
     material_modulus_pa,
+    merge_trees,
     surge_head_m,
+    tree_objectives,
 )
 
 __all__ = ["design_pressure", "energy_weight_per_m"]
@@ -333,11 +342,12 @@ def _least_cost(s, net, loss, cost, ok_v, top_head, req, src, weight, link_root,
         solver = "tree" if exact_tree or L > s.highs_max_links else "highs"
     key = cat.nominal_mm if s.sizing_monotone else None
 
-    def solve(adm, head, cap):
+    def solve(adm, head, cap, only=None, prev=None):
         if solver == "highs":
             return least_cost_highs(net, loss, cost, adm, req, root_head_m=head, root_weight=weight, root_cap_m=cap,
                                     split=s.sizing_split, monotone_key=key)
-        return least_cost_tree(net, loss, cost, adm, req, root_head_m=head, root_weight=weight, root_cap_m=cap)
+        return least_cost_tree(net, loss, cost, adm, req, root_head_m=head, root_weight=weight, root_cap_m=cap,
+                               solve_roots=only, previous=prev)
 
     def with_class(h_root):
         cls = top_head >= h_root[link_root][:, None] - 1e-9
@@ -349,13 +359,19 @@ def _least_cost(s, net, loss, cost, ok_v, top_head, req, src, weight, link_root,
             adm[none, best[none]] = True
         return adm
 
+    def changed_roots(adm_a, adm_b):
+        diff = np.zeros(R, bool)
+        np.logical_or.at(diff, link_root, np.any(adm_a != adm_b, axis=1))
+        return diff
+
     rounds = 1
     exact = True
+    bound = None
     if src is not None:
         res = solve(with_class(src), src, None)
     else:
         # 1. without the class limits: a relaxation, so if its pipes hold their own static head
-        #    and surge it is the optimum
+        #    and surge it is the optimum; otherwise its objective bounds the optimum from below
         res = solve(ok_v, None, None)
         k_all = np.arange(L)
         if L and np.all(res.feasible):
@@ -365,34 +381,50 @@ def _least_cost(s, net, loss, cost, ok_v, top_head, req, src, weight, link_root,
         else:
             held = np.zeros(L, bool)
         if L and not held.all():
-            # 2. classes bind: fix the classes at a head, size with the head capped there, refix at the
-            #    head reached, until the classes stop changing; started from the relaxation's head and
-            #    from the highest head every link can hold, the cheaper outcome kept (each sizing is exact
-            #    for its classes; the pair is a search, not a proof)
+            # 2. classes bind: per source, fix the classes at a head, size with the head capped there,
+            #    refix at the head reached, until that source's classes stop changing (only the sources
+            #    whose classes changed are sized again); started from the relaxation's head and from the
+            #    highest head every link can hold, the cheaper outcome kept per source.  Each sizing is
+            #    exact for its classes; the relaxation bounds the optimum from below (see the notes).
             exact = False
+            bound = float(res.objective)
             cap = np.full(R, np.inf)
             link_cap = np.max(np.where(ok_v, top_head, -np.inf), axis=1)
             np.minimum.at(cap, link_root, link_cap)
-            best = None
+            # the sources whose relaxed pipes all hold their classes keep the relaxation: optimal there
+            binding = np.zeros(R, bool)
+            np.logical_or.at(binding, link_root, ~held)
+            tree = solver == "tree"
+            best, best_obj = None, np.full(R, np.inf)
             for start in (np.minimum(res.root_head_m, cap), cap):
                 adm = with_class(start)
-                cand = solve(adm, None, start)
+                cand = solve(adm, None, start, binding, res) if tree else solve(adm, None, start)
+                todo = binding.copy()
                 for _ in range(9):
-                    rounds += 1
-                    if not np.all(cand.feasible):
+                    todo &= cand.feasible
+                    if not todo.any():
                         break
                     adm_new = with_class(cand.root_head_m)
-                    if np.array_equal(adm_new, adm):
+                    todo &= changed_roots(adm, adm_new)
+                    if not todo.any():
                         break
+                    rounds += 1
                     adm = adm_new
-                    cand = solve(adm, None, cand.root_head_m)
-                if np.all(cand.feasible) and (best is None or cand.objective < best.objective):
-                    best = cand
-            if best is None:
+                    cand = solve(adm, None, cand.root_head_m, todo, cand) if tree else \
+                        solve(adm, None, cand.root_head_m)
+                obj = np.where(cand.feasible, tree_objectives(net, cost, cand, weight), np.inf)
+                if best is None:
+                    best, best_obj = cand, obj
+                else:
+                    better = obj < best_obj
+                    if better.any():
+                        best = merge_trees(net, loss, cost, best, cand, better, weight)
+                        best_obj = np.where(better, obj, best_obj)
+            bad = binding & ~np.isfinite(best_obj)
+            if bad.any():
                 notes.append("no pressure class in the catalog holds the head this tree needs; sized without the "
                              "class limit and flagged over_rating")
-            else:
-                res = best
+            res = merge_trees(net, loss, cost, res, best, binding & ~bad, weight)
     if not np.all(res.feasible):
         notes.append("the source head given cannot meet every minimum pressure even with the largest pipes; "
                      f"the tree needs at least {np.nanmax(res.root_min_head_m):.2f} m above datum")
@@ -410,9 +442,29 @@ def _least_cost(s, net, loss, cost, ok_v, top_head, req, src, weight, link_root,
                      "link was smaller than a link below it (feasible, not proven optimal)")
     root_h = res.root_head_m if src is None else src
     info = {"sizing_solver": solver, "sizing_rounds": rounds, "sizing_optimum": float(res.cost),
-            "sizing_classes_bind": not exact,
+            "sizing_objective": float(res.objective), "sizing_classes_bind": not exact,
             "sizing_min_source_hgl_m": [float(x) for x in res.root_min_head_m]}
+    info["sizing_proof"] = _proof_text(s, solver, exact, src is not None)
+    if bound is not None:
+        # the relaxation without class limits is a proven lower bound on the optimum
+        info["sizing_lower_bound"] = bound
+        info["sizing_gap_pct"] = (100.0 * (res.objective - bound) / abs(bound)) if bound else 0.0
     return p1, p2, f2, np.asarray(root_h, float), info
+
+
+def _proof_text(s, solver, exact, given_head):
+    """What the least-cost sizing proves, for the summary and ``run_info`` (see the module notes)."""
+    if not s.sizing_split and solver == "tree":
+        return "bound: one pipe per link rounded up from the split optimum (which bounds the cost from below)"
+    if s.sizing_monotone and solver == "tree":
+        return "feasible: split optimum repaired to non-increasing sizes downstream (not proven optimal)"
+    if exact:
+        return ("optimal: " + ("least pipe + trench cost at the source head given" if given_head else
+                               "least pipe + trench + energy present value with the source head chosen") +
+                (", split links, every class held" if s.sizing_split else ", one pipe per link (HiGHS)"))
+    return ("classes bind: each source's sizing is optimal for the pressure classes fixed at the head it "
+            "reached (a fixed point of class fixing, the better of two starts per source); the optimum lies "
+            "between sizing_lower_bound (the sizing without class limits) and this design, see sizing_gap_pct")
 
 
 def _monotone_repair(net, loss, cost, ok_v, key, p1, p2, f2):

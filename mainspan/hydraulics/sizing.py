@@ -65,6 +65,8 @@ __all__ = [
     "link_hulls",
     "least_cost_tree",
     "least_cost_highs",
+    "merge_trees",
+    "tree_objectives",
     "korteweg_wave_speed_mps",
     "joukowsky_head_m",
     "surge_head_m",
@@ -465,9 +467,9 @@ def _split_pos(ln, sl, lc, rc, pr, cnt, sln, sls, lz, path, t, p, nxt):  # pragm
 
 
 @numba.njit(cache=True)
-def _grow_f(a, cap):  # pragma: no cover - compiled
-    out = np.empty(cap, a.dtype)
-    out[: a.size] = a
+def _grow_rows(a, cap):  # pragma: no cover - compiled
+    out = np.zeros((cap, a.shape[1]), a.dtype)
+    out[: a.shape[0]] = a
     return out
 
 
@@ -494,19 +496,29 @@ def _inorder(ln, sl, lc, rc, lz, sls, sln, t, out_l, out_s, stack):  # pragma: n
 
 @numba.njit(cache=True)
 def _tree_dp(n, order, parent, parent_link, choff, children, is_root, req,
-             hoff, hh, hc, root_head, root_weight, root_cap):  # pragma: no cover - compiled
+             hoff, hh, hc, root_head, root_weight, root_cap, n_seg_max, n_max, floor_slope, active):  # pragma: no cover - compiled
+    """Bottom-up over ``order`` reversed (a preorder: each tree contiguous, roots first), then top-down.
+
+    ``n_seg_max``/``n_max``: hull segments and nodes of the largest tree (sizes the node arrays).
+    ``floor_slope``: per node, segments steeper than this are folded into the function's start
+    (``-inf``: none); only valid where the root's head is free, priced and not capped.
+    ``active``: per node, solve its tree (outputs of the other trees are left NaN/zero).
+    """
     L = hoff.size - 1
-    n_seg = hoff[L] - L
-    cap = max(64, 4 * n_seg + 4 * n + 64)
-    ln = np.empty(cap)
-    sl = np.empty(cap)
-    lz = np.zeros(cap)
-    sln = np.empty(cap)
-    sls = np.empty(cap)
-    pr = np.empty(cap)
-    lc = np.empty(cap, np.int64)
-    rc = np.empty(cap, np.int64)
-    cnt = np.empty(cap, np.int64)
+    cap = max(64, 4 * n_seg_max + 4 * n_max + 64)
+    # one row per treap node (all its fields side by side): a node visit touches one or two
+    # cache lines instead of nine, which is most of the time on large trees
+    F = np.zeros((cap, 6))
+    I = np.empty((cap, 3), np.int64)
+    ln = F[:, 0]
+    sl = F[:, 1]
+    lz = F[:, 2]
+    sln = F[:, 3]
+    sls = F[:, 4]
+    pr = F[:, 5]
+    lc = I[:, 0]
+    rc = I[:, 1]
+    cnt = I[:, 2]
     path = np.empty(8192, np.int64)
     nxt = 0
     Tn = np.full(n, -1, np.int64)
@@ -522,6 +534,8 @@ def _tree_dp(n, order, parent, parent_link, choff, children, is_root, req,
     feasible = np.ones(n, np.bool_)
     for idx in range(n - 1, -1, -1):
         u = order[idx]
+        if not active[u]:
+            continue
         c0 = choff[u]
         c1 = choff[u + 1]
         T = -1
@@ -574,15 +588,17 @@ def _tree_dp(n, order, parent, parent_link, choff, children, is_root, req,
                 f0 += fg
                 if nxt + 2 * (m - j0) + 4 > cap:
                     cap = max(2 * cap, nxt + 2 * (m - j0) + 4)
-                    ln = _grow_f(ln, cap)
-                    sl = _grow_f(sl, cap)
-                    lz = _grow_f(lz, cap)
-                    sln = _grow_f(sln, cap)
-                    sls = _grow_f(sls, cap)
-                    pr = _grow_f(pr, cap)
-                    lc = _grow_f(lc, cap)
-                    rc = _grow_f(rc, cap)
-                    cnt = _grow_f(cnt, cap)
+                    F = _grow_rows(F, cap)
+                    I = _grow_rows(I, cap)
+                    ln = F[:, 0]
+                    sl = F[:, 1]
+                    lz = F[:, 2]
+                    sln = F[:, 3]
+                    sls = F[:, 4]
+                    pr = F[:, 5]
+                    lc = I[:, 0]
+                    rc = I[:, 1]
+                    cnt = I[:, 2]
                 rest = T
                 Tnew = -1
                 for jj in range(j0, m):
@@ -608,25 +624,68 @@ def _tree_dp(n, order, parent, parent_link, choff, children, is_root, req,
         # the node's own required head
         if nxt + 2 > cap:
             cap = 2 * cap
-            ln = _grow_f(ln, cap)
-            sl = _grow_f(sl, cap)
-            lz = _grow_f(lz, cap)
-            sln = _grow_f(sln, cap)
-            sls = _grow_f(sls, cap)
-            pr = _grow_f(pr, cap)
-            lc = _grow_f(lc, cap)
-            rc = _grow_f(rc, cap)
-            cnt = _grow_f(cnt, cap)
+            F = _grow_rows(F, cap)
+            I = _grow_rows(I, cap)
+            ln = F[:, 0]
+            sl = F[:, 1]
+            lz = F[:, 2]
+            sln = F[:, 3]
+            sls = F[:, 4]
+            pr = F[:, 5]
+            lc = I[:, 0]
+            rc = I[:, 1]
+            cnt = I[:, 2]
         if req[u] > x0:
             A, B, nxt = _split_pos(ln, sl, lc, rc, pr, cnt, sln, sls, lz, path, T, req[u] - x0, nxt)
             if A >= 0:
                 f0 += sls[A]
             T = B
             x0 = req[u]
+        if floor_slope[u] > -np.inf and T >= 0:
+            # head bought dearer than the source's energy price is always bought: fold the leading
+            # segments steeper than the floor into the start (keeps the function short)
+            A, B = _split_slope(ln, sl, lc, rc, pr, cnt, sln, sls, lz, path, T, floor_slope[u])
+            if A >= 0:
+                x0 += sln[A]
+                f0 += sls[A]
+            T = B
         if is_root[u]:
-            Tn[u] = T
-            X0[u] = x0
-            F0[u] = f0
+            # the whole tree below this root is done: choose its head and price it, then reuse the
+            # node arrays for the next tree (``order`` is a preorder, so each tree is one run of it
+            # and the working set stays the size of one tree, not of the whole forest)
+            m = cnt[T] if T >= 0 else 0
+            if m > gl.size:
+                gl = np.empty(m)
+                gs = np.empty(m)
+                stack = np.empty(m, np.int64)
+            if m > 0:
+                m = _inorder(ln, sl, lc, rc, lz, sls, sln, T, gl, gs, stack)
+            root_min[u] = x0
+            if np.isfinite(root_head[u]):
+                h = root_head[u]
+                if h < x0 - 1e-9 * max(1.0, abs(x0)):
+                    feasible[u] = False
+                    h = x0
+            else:
+                h = x0
+                for j in range(m):
+                    if gs[j] >= -root_weight[u]:
+                        break
+                    h += gl[j]
+                if h > root_cap[u]:
+                    h = max(root_cap[u], x0)
+                    if root_cap[u] < x0 - 1e-9 * max(1.0, abs(x0)):
+                        feasible[u] = False
+            c = f0
+            pos = x0
+            for j in range(m):
+                if pos >= h:
+                    break
+                c += gs[j] * min(gl[j], h - pos)
+                pos += gl[j]
+            root_H[u] = h
+            root_cost[u] = c
+            nxt = 0
             continue
         k = parent_link[u]
         a0 = hoff[k]
@@ -635,15 +694,17 @@ def _tree_dp(n, order, parent, parent_link, choff, children, is_root, req,
         f0 += hc[a0]
         if nxt + (a1 - a0) + 2 > cap:
             cap = max(2 * cap, nxt + (a1 - a0) + 2)
-            ln = _grow_f(ln, cap)
-            sl = _grow_f(sl, cap)
-            lz = _grow_f(lz, cap)
-            sln = _grow_f(sln, cap)
-            sls = _grow_f(sls, cap)
-            pr = _grow_f(pr, cap)
-            lc = _grow_f(lc, cap)
-            rc = _grow_f(rc, cap)
-            cnt = _grow_f(cnt, cap)
+            F = _grow_rows(F, cap)
+            I = _grow_rows(I, cap)
+            ln = F[:, 0]
+            sl = F[:, 1]
+            lz = F[:, 2]
+            sln = F[:, 3]
+            sls = F[:, 4]
+            pr = F[:, 5]
+            lc = I[:, 0]
+            rc = I[:, 1]
+            cnt = I[:, 2]
         for i in range(a0, a1 - 1):
             dl = hh[i + 1] - hh[i]
             s = (hc[i + 1] - hc[i]) / dl
@@ -663,53 +724,12 @@ def _tree_dp(n, order, parent, parent_link, choff, children, is_root, req,
         Tn[u] = T
         X0[u] = x0
         F0[u] = f0
-    # roots: choose the head, price it
-    H = np.full(n, np.nan)
-    for idx in range(n):
-        u = order[idx]
-        if not is_root[u]:
-            continue
-        T = Tn[u]
-        x0 = X0[u]
-        f0 = F0[u]
-        m = cnt[T] if T >= 0 else 0
-        if m > gl.size:
-            gl = np.empty(m)
-            gs = np.empty(m)
-            stack = np.empty(m, np.int64)
-        if m > 0:
-            m = _inorder(ln, sl, lc, rc, lz, sls, sln, T, gl, gs, stack)
-        root_min[u] = x0
-        if np.isfinite(root_head[u]):
-            h = root_head[u]
-            if h < x0 - 1e-9 * max(1.0, abs(x0)):
-                feasible[u] = False
-                h = x0
-        else:
-            h = x0
-            for j in range(m):
-                if gs[j] >= -root_weight[u]:
-                    break
-                h += gl[j]
-            if h > root_cap[u]:
-                h = max(root_cap[u], x0)
-                if root_cap[u] < x0 - 1e-9 * max(1.0, abs(x0)):
-                    feasible[u] = False
-        c = f0
-        pos = x0
-        for j in range(m):
-            if pos >= h:
-                break
-            c += gs[j] * min(gl[j], h - pos)
-            pos += gl[j]
-        root_H[u] = h
-        root_cost[u] = c
-        H[u] = h
+    H = root_H.copy()
     # top-down: each link's head loss at the head its parent receives
     hl = np.zeros(L)
     for idx in range(n):
         u = order[idx]
-        if is_root[u]:
+        if is_root[u] or not active[u]:
             continue
         k = parent_link[u]
         hu = H[parent[u]]
@@ -788,7 +808,7 @@ def _root_arrays(net, root_head, root_weight, root_cap):
 
 
 def least_cost_tree(net, loss_m, cost, admissible, req_head_m, *, root_head_m=None, root_weight=None,
-                    root_cap_m=None) -> LeastCostResult:
+                    root_cap_m=None, solve_roots=None, previous=None) -> LeastCostResult:
     """Exact least-cost sizing with split links by the tree method (see module notes).
 
     Parameters
@@ -805,6 +825,11 @@ def least_cost_tree(net, loss_m, cost, admissible, req_head_m, *, root_head_m=No
         Cost per metre of root head (energy present value × flow), for free roots.
     root_cap_m : None, float or array, default=None
         Highest head a free root may take (pressure class), m above datum.
+    solve_roots : None or array of bool (one per root), default=None
+        Solve only these roots' trees; the others are copied from ``previous``
+        (the trees of a forest are independent problems).
+    previous : LeastCostResult, default=None
+        Result on the same network the unsolved trees are taken from.
 
     Returns
     -------
@@ -828,32 +853,89 @@ def least_cost_tree(net, loss_m, cost, admissible, req_head_m, *, root_head_m=No
     L = net.n_links
     if loss.shape[0] != L:
         raise InputError(f"least_cost_tree: loss_m has {loss.shape[0]} rows for {L} links")
+    n, R = net.n_nodes, net.roots.size
     hoff, hp, hh, hc = link_hulls(loss, cst, admissible)
     head, weight, cap = _root_arrays(net, root_head_m, root_weight, root_cap_m)
     req = np.ascontiguousarray(req_head_m, dtype=np.float64)
-    is_root = np.zeros(net.n_nodes, np.bool_)
+    is_root = np.zeros(n, np.bool_)
     is_root[net.roots] = True
     r = net.roots
-    if L and np.all(np.isnan(head[r])) and np.all(weight[r] > 0):
-        # Free heads priced by energy: at the optimum no link pays more for a metre of head than its
-        # source's energy price (the node prices of the dual sum to it), so hull segments steeper than
-        # that are taken in full.  Solve without them; the answer stands when no source reaches its
-        # cap (then every optimality condition of the full problem holds), else solve in full.
-        w_link = weight[net.root_of[net.from_node]]
+    pos = np.empty(n, np.int64)
+    pos[r] = np.arange(R)
+    todo = np.ones(R, bool) if solve_roots is None else np.asarray(solve_roots, bool).copy()
+    if previous is None:
+        if not todo.all():
+            raise InputError("least_cost_tree: solve_roots leaves trees unsolved; pass the previous result")
+        H, hl, rmin, feas = np.full(n, np.nan), np.zeros(L), np.full(n, np.nan), np.ones(n, bool)
+        p1, p2, f2 = np.zeros(L, np.int64), np.full(L, -1, np.int64), np.zeros(L)
+    else:
+        H, hl = previous.head_m.copy(), previous.loss_m.copy()
+        rmin, feas = np.full(n, np.nan), np.ones(n, bool)
+        rmin[r], feas[r] = previous.root_min_head_m, previous.feasible
+        p1, p2, f2 = previous.pipe.copy(), previous.pipe_2.copy(), previous.fraction_2.copy()
+    tree_of_link = pos[net.root_of[net.to_node]] if L else np.zeros(0, np.int64)
+
+    def take(done, dH, dhl, dfeas, off, pp, hh_):
+        """Copy the trees in ``done`` (per root) from one solve into the result arrays."""
+        nodes = done[pos[net.root_of]]
+        links = done[tree_of_link]
+        H[nodes] = dH[nodes]
+        feas[nodes] = dfeas[nodes]
+        if links.any():
+            q1, q2, g2 = _pieces(off, pp, hh_, dhl)
+            hl[links], p1[links], p2[links], f2[links] = dhl[links], q1[links], q2[links], g2[links]
+
+    free = todo & np.isnan(head[r])
+    least = _least_head(net, hoff, hh, req)
+    # a tree whose least head (largest admissible pipes) is above its cap cannot be served: its
+    # first folded answer (the cheapest sizing at the head it needs) is kept, marked infeasible
+    with np.errstate(invalid="ignore"):
+        hopeless = free & (least[r] > cap[r] + 1e-9 * np.maximum(1.0, np.abs(cap[r])))
+    for k in range(3):
+        if not (L and free.any()):
+            break
+        # Free heads: at the optimum no node's head is worth more per metre than its source's
+        # (the node prices of the dual add up along the tree to the source's), and a source's price
+        # is its energy price w unless its cap binds.  So segments steeper than the source's price
+        # are bought in full -- dropped from the link hulls and folded into each node's function as
+        # it is built.  Below the fold every slope is steeper than the price, so the folded function
+        # is exact wherever its slope is gentler (slopes are <= 0 and add up).  A tree's answer stands
+        # when its folded start is within its cap (its optimum lies where the function is exact);
+        # otherwise it is solved again with a price 16 times higher, and in full after two tries.
+        price = weight[r] if k == 0 else np.maximum(weight[r], 1.0) * 16.0 ** k
+        price_n = price[pos[net.root_of]]
+        w_link = np.where(free[tree_of_link], price_n[net.to_node], np.inf)
         ph = _prune_hulls(hoff, hp, hh, hc, w_link)
-        H, hl, rmin, rcost, feas = _tree_dp(net.n_nodes, net.order, net.parent, net.parent_link,
-                                            net.children_offsets, net.children, is_root, req, ph[0], ph[2], ph[3],
-                                            head, weight, cap)
-        with np.errstate(invalid="ignore"):
-            below = np.isinf(cap[r]) | (H[r] < cap[r] - 1e-9 * np.maximum(1.0, np.abs(cap[r])))
-        if np.all(feas[r]) and np.all(below):
-            p1, p2, f2 = _pieces(ph[0], ph[1], ph[2], hl)
-            rmin = _least_head(net, hoff, hh, req)
-            return _result(net, loss, cst, p1, p2, f2, H, rmin, feas, weight)
-    H, hl, rmin, rcost, feas = _tree_dp(net.n_nodes, net.order, net.parent, net.parent_link, net.children_offsets,
-                                        net.children, is_root, req, hoff, hh, hc, head, weight, cap)
-    p1, p2, f2 = _pieces(hoff, hp, hh, hl)
+        act = free[pos[net.root_of]]
+        dH, dhl, _, _, dfeas = _tree_dp(n, net.preorder, net.parent, net.parent_link, net.children_offsets,
+                                        net.children, is_root, req, ph[0], ph[2], ph[3], head, weight, cap,
+                                        *_largest_tree(net, ph[0], act), -price_n, act)
+        done = free & (dfeas[r] | hopeless)
+        take(done, dH, dhl, dfeas, ph[0], ph[1], ph[2])
+        rmin[r[done]] = least[r[done]]
+        todo &= ~done
+        free &= ~done
+    if L and todo.any():
+        act = todo[pos[net.root_of]]
+        dH, dhl, dmin, _, dfeas = _tree_dp(n, net.preorder, net.parent, net.parent_link, net.children_offsets,
+                                           net.children, is_root, req, hoff, hh, hc, head, weight, cap,
+                                           *_largest_tree(net, hoff, act), np.full(n, -np.inf), act)
+        take(todo, dH, dhl, dfeas, hoff, hp, hh)
+        rmin[r[todo]] = dmin[r[todo]]
+    elif not L:
+        H[r] = np.where(np.isnan(head[r]), req[r], head[r])
+        rmin[r] = req[r]
+        feas[r] = np.isnan(head[r]) | (head[r] >= req[r] - 1e-9 * np.maximum(1.0, np.abs(req[r])))
     return _result(net, loss, cst, p1, p2, f2, H, rmin, feas, weight)
+
+
+def _largest_tree(net, hoff, active):
+    """Hull segments and nodes of the largest active tree (the tree method's working set)."""
+    if net.n_links == 0:
+        return 0, 1
+    seg = np.bincount(net.root_of[net.to_node], weights=np.diff(hoff) - 1, minlength=net.n_nodes)
+    act = active[net.roots]
+    return int(seg[net.roots][act].max(initial=0)), int(np.max(net.subtree_size[net.roots][act], initial=1))
 
 
 def _prune_hulls(hoff, hp, hh, hc, w_link):
@@ -894,6 +976,39 @@ def _result(net, loss, cst, p1, p2, f2, H, rmin, feas, weight):
                            root_head_m=H[roots].copy(), root_min_head_m=rmin[roots].copy(),
                            feasible=feas[roots].copy(), cost=c,
                            objective=c + float(np.sum(weight[roots] * H[roots])))
+
+
+def tree_objectives(net, cost, res, root_weight=None):
+    """Per root (order of ``net.roots``): its tree's pipe + trench cost plus weight × its head."""
+    cst = np.asarray(cost, np.float64)
+    L, R = net.n_links, net.roots.size
+    pos = np.empty(net.n_nodes, np.int64)
+    pos[net.roots] = np.arange(R)
+    k = np.arange(L)
+    q2 = np.where(res.pipe_2 >= 0, res.pipe_2, res.pipe)
+    lc = (1 - res.fraction_2) * cst[k, res.pipe] + res.fraction_2 * cst[k, q2]
+    per = np.bincount(pos[net.root_of[net.to_node]], weights=lc, minlength=R) if L else np.zeros(R)
+    w = np.zeros(R) if root_weight is None else np.broadcast_to(np.asarray(root_weight, float), (R,))
+    return per + w * res.root_head_m
+
+
+def merge_trees(net, loss_m, cost, a, b, use_b, root_weight=None) -> LeastCostResult:
+    """The trees of ``a``, except those of the roots in ``use_b`` taken from ``b`` (same network)."""
+    n, R = net.n_nodes, net.roots.size
+    pos = np.empty(n, np.int64)
+    pos[net.roots] = np.arange(R)
+    use_b = np.asarray(use_b, bool)
+    nodes = use_b[pos[net.root_of]]
+    links = nodes[net.to_node]
+    pick = lambda x, y, m: np.where(m, y, x)  # noqa: E731
+    H = pick(a.head_m, b.head_m, nodes)
+    rmin, feas = np.full(n, np.nan), np.ones(n, bool)
+    rmin[net.roots] = pick(a.root_min_head_m, b.root_min_head_m, use_b)
+    feas[net.roots] = pick(a.feasible, b.feasible, use_b)
+    w = np.zeros(n)
+    w[net.roots] = 0.0 if root_weight is None else np.broadcast_to(np.asarray(root_weight, float), (R,))
+    return _result(net, np.asarray(loss_m, float), np.asarray(cost, float), pick(a.pipe, b.pipe, links),
+                   pick(a.pipe_2, b.pipe_2, links), pick(a.fraction_2, b.fraction_2, links), H, rmin, feas, w)
 
 
 def least_cost_highs(net, loss_m, cost, admissible, req_head_m, *, root_head_m=None, root_weight=None,
