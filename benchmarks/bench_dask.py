@@ -198,7 +198,7 @@ def per_task_costs(proj, sset):
     try:
         j = _prepare(pr, "base", _checked_settings(pr, "base"), bench, lambda *a: None)
         t_run, _ = median_time(lambda: stability_task(
-            "base", 0, 1, 15.0, j["sites"], j["cands"].edges, j["terr"], j["land"],
+            "base", (0,), 1, 15.0, j["sites"], j["cands"].edges, j["terr"], j["land"],
             j["weights"], j["elev"], roots, j["plan"], None), 5)
     finally:
         bench.close()

@@ -39,8 +39,8 @@ class Engine:
     def share(self, obj):
         """A handle of *obj* to put in task arguments in its place.
 
-        A distributed engine sends *obj* to every worker once (not once per
-        task that uses it) and keeps it there until :meth:`release`; the
+        A distributed engine sends *obj* to the cluster once (each worker
+        fetches it once, not once per task that uses it) and keeps it there until :meth:`release`; the
         embedded engine returns *obj* itself.
         """
         return obj
@@ -115,7 +115,8 @@ class DaskEngine(Engine):
     def share(self, obj):
         hit = self._shared.get(id(obj))
         if hit is None:      # keep obj alive with its future, so its id stays unique
-            fut = self.client.scatter([obj], broadcast=True, hash=False)[0]
+            # not broadcast: a worker fetches it once, when its first task needs it
+            fut = self.client.scatter([obj], hash=False)[0]
             hit = self._shared[id(obj)] = (obj, fut)
         return hit[1]
 

@@ -294,23 +294,33 @@ def _grow_scenarios(eng, bench, order, jobs, say):
     return results
 
 
+def _run_batches(runs, n_scen, eng):
+    """Run numbers per task: tenths of a scenario's runs embedded (a progress step each);
+    about four tasks per worker on Dask, whose overhead per task (tens of ms, see
+    benchmarks/bench_dask.py) outweighs one run of a small scenario."""
+    per = -(-runs // 10) if eng.local else -(-runs // max(1, -(-4 * eng.n_workers // n_scen)))
+    return [range(a, min(a + per, runs)) for a in range(0, runs, per)]
+
+
 def _stability_runs(eng, bench, order, jobs, results, say, runs, pct, seed):
-    """One task per perturbed run of every scenario; shares of runs holding each link."""
+    """Perturbed runs of every scenario in batches of runs, one task each; each run draws
+    from its own stream, so the batching changes no result."""
     sh = eng.share
-    items = []
+    items, batches = [], _run_batches(runs, len(order), eng)
     for name in order:
         j = jobs[name]
         common = (sh(j["sites"]), sh(j["cands"].edges), sh(j["terr"]), sh(j["land"]),
                   j["weights"], sh(j["elev"]), j["root_idx"], j["plan"],
                   _terrain_for(eng, bench, j))
-        items += [(name, i, seed, pct, *common) for i in range(runs)]
+        items += [(name, b, seed, pct, *common) for b in batches]
     stage = "stability" if len(order) == 1 else f"stability ({len(order)} scenarios)"
     say(stage, 0, len(items))
     out = eng.map(stability_task, items, stage=stage, say=say)
-    for k, name in enumerate(order):
+    k = len(batches)
+    for s, name in enumerate(order):
         count = np.zeros(len(jobs[name]["cands"].edges), dtype=np.int64)
-        for links in out[k * runs:(k + 1) * runs]:      # in run order, whatever finished first
-            count[links] += 1
+        for c in out[s * k:(s + 1) * k]:
+            count += c
         res = results[name]
         res.stability = count / float(runs)
         res.runs = runs

@@ -109,19 +109,29 @@ def stability_rng(seed, name, run):
     return np.random.default_rng([int(seed), zlib.crc32(name.encode()), int(run)])
 
 
-def stability_task(name, run, seed, pct, sites, edges, terrain_parts, land_parts, weights,
+def stability_task(name, runs, seed, pct, sites, edges, terrain_parts, land_parts, weights,
                    elev, root_idx, plan, terrain):
-    """Candidate indices of the links of one perturbed tree (int64 array).
+    """How many of the perturbed trees *runs* (run numbers) hold each candidate link.
 
-    The land-cost component of every link is multiplied by its own factor
-    drawn uniformly from ``[1 - pct/100, 1 + pct/100]``.
+    In each run the land-cost component of every link is multiplied by its
+    own factor drawn uniformly from ``[1 - pct/100, 1 + pct/100]`` from the
+    run's own stream (:func:`stability_rng`), so the counts of a batch of
+    runs do not depend on how runs are batched into tasks.
+
+    Returns
+    -------
+    ndarray of int32, shape (m,)
     """
+    surf = resolve_surface(terrain)
+    count = np.zeros(len(edges), dtype=np.int32)
     try:
-        f = stability_rng(seed, name, run).uniform(1.0 - pct / 100.0, 1.0 + pct / 100.0,
-                                                   len(edges))
-        costs = combine_costs(terrain_parts, land_parts, weights, land_factor=f)
-        tree, _, _ = _grow(sites, edges, costs, elev, root_idx, plan, certify=False,
-                           terrain_surface=resolve_surface(terrain))
-        return np.asarray(_tree_links(tree)[2], dtype=np.int64)
+        for run in runs:
+            f = stability_rng(seed, name, run).uniform(1.0 - pct / 100.0, 1.0 + pct / 100.0,
+                                                       len(edges))
+            costs = combine_costs(terrain_parts, land_parts, weights, land_factor=f)
+            tree, _, _ = _grow(sites, edges, costs, elev, root_idx, plan, certify=False,
+                               terrain_surface=surf)
+            count[_tree_links(tree)[2]] += 1
     except (InputError, DataFileError) as exc:
         raise _named(name, exc) from None
+    return count
