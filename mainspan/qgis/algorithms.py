@@ -75,10 +75,20 @@ class _Progress:
 
 
 def one_line(exc) -> str:
-    """The message of a mainspan error on one line, naming parameters instead of options."""
+    """The message of a mainspan error on one line, naming parameters instead of options
+    (only mainspan's own options: another tool's flag quoted in a message stays as it is)."""
+    from ..settings import by_flag
+
     msg = " ".join(str(exc).split())
-    return re.sub(r"(?:option )?--([a-z][a-z0-9-]*)", lambda m: "parameter " + m.group(1).replace(
-        "-", "_").upper(), msg)
+    ours = by_flag()
+
+    def swap(m):
+        flag = "--" + m.group(1)
+        s = ours.get(flag)
+        if s is None:
+            return m.group(0)
+        return "parameter " + s.option.lstrip("-").replace("-", "_").upper()
+    return re.sub(r"(?:option )?--([a-z][a-z0-9-]*)", swap, msg)
 
 
 class MainspanAlgorithm(QgsProcessingAlgorithm):
