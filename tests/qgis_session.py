@@ -115,7 +115,8 @@ def main_task(a):
         from processing.gui.Postprocessing import handleAlgorithmResults
         handleAlgorithmResults(reg.algorithmById("mainspan:plan"), ctx, Feedback())
         root = QgsProject.instance().layerTreeRoot()
-        out["tree"] = {g.name(): [(c.name(), c.layer().renderer().type(), c.layer().featureCount())
+        out["tree"] = {g.name(): [(c.name(), c.layer().renderer().type(), c.layer().featureCount(),
+                                   rule_labels(c.layer()))
                                   for c in g.children()] for g in root.findGroups()}
         out["root_layers"] = [c.name() for c in root.children() if hasattr(c, "layer")]
         out["gdal_warnings"] = {name: gdal_messages(p) for name, p in (
@@ -166,6 +167,11 @@ def main_task(a):
     return out
 
 
+def rule_labels(layer):
+    r = layer.renderer()
+    return [c.label() for c in r.rootRule().children()] if r.type() == "RuleRenderer" else []
+
+
 def gdal_messages(path):
     """What the GDAL that QGIS uses says on opening *path*."""
     from osgeo import gdal
@@ -191,6 +197,21 @@ def style_checks(gpkg, w):
     r = mem.renderer()
     out["sized"] = [r.type(), r.classAttribute(), [(g.lowerValue(), g.upperValue(),
                     g.symbol().width(), g.symbol().color().name()) for g in r.ranges()]]
+    # without layer_styles (an older mainspan's file): our fallback style
+    bare = os.path.join(w, "bare.gpkg")
+    shutil.copyfile(gpkg, bare)
+    import sqlite3
+    con = sqlite3.connect(bare)
+    con.execute("DELETE FROM layer_styles")
+    con.commit()
+    con.close()
+    out["bare_has_style"] = _has_own_style(bare, "nodes")
+    lyr = QgsVectorLayer(bare + "|layername=nodes", "nodes", "ogr")
+    QgsProject.instance().addMapLayer(lyr)
+    ctx0 = QgsProcessingContext()
+    ctx0.setProject(QgsProject.instance())
+    LayoutLayers(bare, "nodes", "", 0).postProcessLayer(lyr, ctx0, Feedback())
+    out["bare_renderer"] = lyr.renderer().type()
     own = os.path.join(w, "own_style.gpkg")
     shutil.copyfile(gpkg, own)
     out["own_before"] = _has_own_style(own, "links")

@@ -279,9 +279,12 @@ def test_plan_layers_load_grouped_and_styled(qgis_run):
     res, _ = qgis_run
     groups = res["tree"]
     assert list(groups) == ["mainspan layout: layout"] and res["root_layers"] == []
-    (nodes, n_type, n_count), (links, l_type, l_count) = groups["mainspan layout: layout"]
-    assert (nodes, n_type) == ("nodes", "categorizedSymbol")   # one marker per role
-    assert (links, l_type) == ("links", "singleSymbol")        # no sizes: one line style
+    (nodes, n_type, n_count, n_rules), (links, l_type, l_count, l_rules) = \
+        groups["mainspan layout: layout"]
+    # the style the GeoPackage carries (mainspan.writers.styles): one rule per role present
+    assert (nodes, n_type) == ("nodes", "RuleRenderer") and (links, l_type) == ("links",
+                                                                                 "RuleRenderer")
+    assert {"source", "demand"} <= set(n_rules) and l_rules == ["planned main"]
     # QGIS's OGR provider reads back what pyogrio (GDAL, outside QGIS) reads
     gpkg = res["plan"]["result"]["OUTPUT"]
     assert n_count == pyogrio.read_info(gpkg, layer="nodes")["features"] == 148
@@ -297,8 +300,10 @@ def test_link_style_by_size_and_a_saved_style_is_kept(qgis_run):
     assert widths == sorted(widths) and len(set(widths)) == st["n_classes"] >= 3
     assert {c for *_, c in ranges} == {st["pressure_colour"]}
     assert all(a[1] == b[0] for a, b in zip(ranges, ranges[1:]))     # no gaps between classes
-    # a default style saved in the GeoPackage's layer_styles table (QGIS's own) wins
-    assert st["own_before"] is False and st["own_after"] is True
+    # a GeoPackage without layer_styles gets our fallback: one marker per role
+    assert st["bare_has_style"] is False and st["bare_renderer"] == "categorizedSymbol"
+    # a style a user saved as default in the GeoPackage (with QGIS itself) wins over ours
+    assert st["own_before"] is True and st["own_after"] is True
     assert st["own_colour"] == "#ff00ff"
 
 

@@ -3,9 +3,10 @@
 The layers of the output GeoPackage (``links``, ``nodes``) are queued with
 ``QgsProcessingContext.addLayerToLoadOnCompletion``; when processing loads
 them, :class:`LayoutLayers` moves each into one group named after the
-GeoPackage and styles it.  A style the GeoPackage itself carries (a default
-row of its ``layer_styles`` table, which QGIS applies on loading) is kept;
-otherwise the first version of our own applies:
+GeoPackage and styles it.  The default style the GeoPackage carries (a row of
+its ``layer_styles`` table: the style mainspan's writer saves,
+:mod:`mainspan.writers.styles`, or one a user saved as default) is loaded;
+a GeoPackage without one (written by an older mainspan) gets this fallback:
 
 * links: one line colour per system (pressure mains teal, gravity mains
   brown, an unsized tree slate grey); with sized pipes the line width grows
@@ -47,9 +48,9 @@ def _has_own_style(path, table):
     except sqlite3.Error:
         return False
     try:
-        # hand16: the style mainspan's writer saves (writers/styles.py) is not the user's own
+        # mainspan's writer saves its style there (writers/styles.py); a user may save another
         row = con.execute("SELECT count(*) FROM layer_styles WHERE f_table_name = ? AND "
-                          "useAsDefault AND styleName <> 'mainspan'", (table,)).fetchone()
+                          "useAsDefault", (table,)).fetchone()
         return bool(row and row[0])
     except sqlite3.Error:
         return False
@@ -97,7 +98,12 @@ class LayoutLayers(QgsProcessingLayerPostProcessorInterface):
 
     def postProcessLayer(self, layer, context, feedback):   # noqa: N802 - QGIS API
         project = context.project() or QgsProject.instance()
-        if not _has_own_style(self.path, self.table):
+        # processing loads result layers without their default style: load the one the
+        # GeoPackage carries (mainspan's, or one a user saved as default), else ours
+        loaded = False
+        if _has_own_style(self.path, self.table):
+            _msg, loaded = layer.loadDefaultStyle()
+        if not loaded:
             style_layer(layer, self.table, self.system)
         root = project.layerTreeRoot()
         name = GROUP_PREFIX + os.path.splitext(os.path.basename(self.path))[0]
