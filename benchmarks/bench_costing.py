@@ -79,8 +79,8 @@ def child(args):
     xy = scheme(args.sites, args.side)
     e = build_candidates(xy).edges
     with open_surface(args.dem, working_crs=CRS) as s:      # warm numba (cached on disk)
-        s.focus(xy[:4])
-        s.sample(xy[:4])
+        s.focus(xy[:1])                                    # a small window: 512 x 512
+        s.sample(xy[:1])
     rss0 = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
     t = time.perf_counter()
     with open_surface(args.dem, working_crs=CRS) as s:
@@ -180,7 +180,8 @@ def main(argv=None):
         a1 = a0 + rng.normal(0, 1.0, (m, 2)) * (per * CELL / 2 / np.sqrt(2))
         f = np.linspace(0.0, 1.0, per)
         xy = (a0[:, None, :] + f[None, :, None] * (a1 - a0)[:, None, :]).reshape(-1, 2)[:npts]
-        xy = np.clip(xy, corner[0] + 1, corner[1] - 1)
+        # at least half a cell inside the crop, where the reference's clamped edge ends
+        xy = np.clip(xy, corner[0] + 10, corner[1] - 10)
         with open_surface(dem, working_crs=CRS) as s:       # warm the kernels
             s.focus(corner)
             s.sample(xy[:1000])

@@ -84,7 +84,7 @@ __all__ = ["Surface", "open_surface", "traverse_grid"]
 _CHUNK_CELLS = 4_000_000       # traversal crossings held at once
 _CHUNK_POINTS = 2_000_000      # sample positions held at once
 _TILE_TARGET = 1024
-_DEFAULT_BUDGET_MB = 128
+_DEFAULT_BUDGET_MB = 64
 _GDAL_CACHE_BYTES = 64 * 2 ** 20
 _ORDER_BLOCK = 256             # cells per side of the blocks that order links for locality
 _EXACT_IN_F32 = {np.dtype(t) for t in ("uint8", "int8", "uint16", "int16", "float16", "float32")}
@@ -134,10 +134,10 @@ def open_surface(path, *, working_crs, raster_crs=None, band=1, name="terrain",
         1-based band number.
     name : str, default="terrain"
         Name used in messages and component names.
-    max_memory_mb : float, default=128
-        Budget for cached raster cells: a job window up to this size (about 5,800 x 5,800
+    max_memory_mb : float, default=64
+        Budget for cached raster cells: a job window up to this size (about 4,000 x 4,000
         float32 cells) is read in one piece, a larger one tile by tile.  With the libraries
-        loaded (about 200 MiB) a costing run then stays under about 400 MiB.
+        loaded (about 270 MiB) a costing run then stays under about 400 MiB.
 
     Returns
     -------
