@@ -247,8 +247,9 @@ def _sections(layout, n_sections, ids, say):
         return "<p>No links.</p>"
     # a sheet holds a readable number of links: long paths are shown from their start
     paths = [p[:MAX_SECTION_LINKS + 1] for p in full]
-    # one vertical exaggeration for every section of the report: the smallest that fits all
-    vx = min(fit_exaggeration(section_data(layout, p)) for p in paths)
+    # one vertical exaggeration for every section of the report: the one that fits the
+    # longest path; shorter, steeper branches are drawn over a wider chainage range
+    vx = fit_exaggeration(section_data(layout, paths[0]))
     secs = [f'<p class="sub">Every section is drawn at vertical exaggeration ×{vx:g}.</p>']
     for k, path in enumerate(paths, start=1):
         say(f"report: long section {k} of {len(paths)}")

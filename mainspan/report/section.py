@@ -345,6 +345,9 @@ def long_section(layout, *, path=None, to_node=None, longest=True, figsize=(11.0
     ymin, ymax = _ylimits(d)
     vx = float(vertical_exaggeration) if vertical_exaggeration else fit_exaggeration(d, figsize)
     box_ratio = (_PROFILE_BOX[3] * figsize[1]) / (_PROFILE_BOX[2] * figsize[0])
+    # at a given exaggeration a short, steep section may not fit: widen the chainage
+    # range instead of changing the exaggeration (the section then fills part of the width)
+    xspan = max(xspan, max(ymax - ymin, 0.5) * 1.35 * vx / box_ratio)
     yspan = xspan * box_ratio / vx
     yc = (ymin + ymax) / 2 + 0.08 * yspan
     ax.set_xlim(x0, x0 + xspan)
