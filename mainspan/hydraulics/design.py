@@ -627,6 +627,7 @@ def design_network(
     population=None,
     min_pressure_m=None,
     surface_share=None,
+    existing_link=None,
 ) -> DesignResult:
     """Orient, size and check a tree of pressure or gravity mains.
 
@@ -666,6 +667,9 @@ def design_network(
     surface_share : tuple of (offsets, class_code, length_m), optional
         Surface classes each link crosses (CSR by link, in the given link
         order): reinstatement is priced by their length-weighted rate.
+    existing_link : array_like of bool, shape (L,), optional
+        Links that are existing pipes (:mod:`mainspan.pipeline.extend`): they carry flow and
+        are sized (the size they would need) but cost nothing and have no bill row.
 
     Returns
     -------
@@ -835,6 +839,17 @@ def design_network(
     piece_trench = sum(piece_parts.values())
     piece_pipe = cat_used.cost_per_m[pp_] * pieces["length_m"]
     piece_land = land[pl_] * share
+    # --- exist15: existing pipes are in the ground: no pipe, trench or land price, no bill row ---
+    if existing_link is not None:
+        new_piece = ~np.asarray(existing_link, bool)[pl_]
+        piece_pipe, piece_trench, piece_land = (np.where(new_piece, v, 0.0)
+                                                for v in (piece_pipe, piece_trench, piece_land))
+        trench_parts = {k: np.bincount(pl_, weights=np.where(new_piece, v, 0.0), minlength=L)
+                        for k, v in piece_parts.items()}
+        land = np.where(np.asarray(existing_link, bool), 0.0, land)
+    else:
+        new_piece = np.ones(len(pl_), bool)
+    # --- end exist15 ---
     trench_cost = np.bincount(pl_, weights=piece_trench, minlength=L)
     pipe_cost = np.bincount(pl_, weights=piece_pipe, minlength=L)
     links.update(
@@ -861,7 +876,9 @@ def design_network(
     if system == "gravity":  # manholes, drop manholes, lift stations and their energy (gravity_design)
         bill_items += grav.items
         energy_pv = grav.energy_cost_pv
-    quantities = bill_of_quantities(pipe_rows(cat_used, pp_, pieces["length_m"], piece_pipe, piece_trench, piece_land),
+    nb = new_piece      # exist15: bill rows of new pipes only
+    quantities = bill_of_quantities(pipe_rows(cat_used, pp_[nb], pieces["length_m"][nb], piece_pipe[nb],
+                                              piece_trench[nb], piece_land[nb]),
                                     bill_items)
     failures = []
     for kind, i, check, text in sorted(details, key=lambda t: (t[0] != "link", t[1], t[2])):
