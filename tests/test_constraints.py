@@ -149,10 +149,10 @@ def test_errors_name_the_sites():
 
 def test_link_pairs_and_add_links():
     ids = ["S", "h1", "h2", "h3"]
-    p = link_pairs(ids, ["h2,S", ("h1", "h3"), " h3 , h1 "])
+    p = link_pairs(ids, ["h2:S", ("h1", "h3"), " h3 , h1 "])
     assert p.tolist() == [[0, 2], [1, 3]]
     with pytest.raises(InputError, match=r"--forbid: site id 'zz'"):
-        link_pairs(ids, ["S,zz"], option="--forbid")
+        link_pairs(ids, ["S:zz"], option="--forbid")
     with pytest.raises(InputError, match="two site ids"):
         link_pairs(ids, ["S"])
     with pytest.raises(InputError, match="to itself"):

@@ -129,6 +129,16 @@ MUTATIONS = [
     Mutation("path-sum-link", "mainspan/graph/network.py",
              "out[v] = out[p] + link_values[parent_link[v]]", "out[v] = out[p] + link_values[parent_link[p]]",
              NETWORK, "cost to root adds the parent's link instead of the node's"),
+    # --- limits and forced links (capacitated.py, constraints.py; exist15) ---
+    Mutation("ew-branch-limit-strict", "mainspan/graph/capacitated.py",
+             "fit_join = join & (new_size <= ms)", "fit_join = join & (new_size < ms)",
+             ("tests/test_capacitated.py",), "Esau-Williams joins stop one site short of the "
+             "branch limit"),
+    Mutation("forced-keeps-inner-links", "mainspan/graph/constraints.py",
+             "keep = np.flatnonzero((cu != cv) & np.isfinite(w))",
+             "keep = np.flatnonzero(np.isfinite(w))",
+             ("tests/test_constraints.py",), "links inside a forced group stay in the "
+             "contracted graph (self loops)"),
 ]
 
 

@@ -497,7 +497,7 @@ def _precheck(n, e, w, roots, is_src, sw, dem, ms, mf, md, cap, limits, ids):
             src_links[s] = int(np.count_nonzero(~is_src[nb]))
         branches = sum(min(v, md) for v in src_links.values())
         if ms < _BIG and branches * ms < sw.sum():
-            srcs = ", ".join(f"{ids[s]} {v}" for s, v in src_links.items())
+            srcs = ", ".join(f"{ids[s]} {min(v, md)}" for s, v in src_links.items())
             raise InputError(f"limit max_branch_sites={limits.max_branch_sites} cannot be met: "
                              f"{sw.sum():g} sites need at least {int(np.ceil(sw.sum() / ms))} "
                              f"branches but the sources have {branches} usable candidate links "

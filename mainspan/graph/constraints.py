@@ -64,13 +64,13 @@ def link_pairs(node_id, pairs, *, option="--force") -> np.ndarray:
     node_id : sequence of str
         The site ids, in node order.
     pairs : sequence
-        Each item a pair ``(id_a, id_b)`` or a text ``"id_a,id_b"``.
+        Each item a pair ``(id_a, id_b)`` or a text ``"id_a:id_b"`` (or ``"id_a,id_b"``).
     option : str
         The option or key named in messages.
 
     Examples
     --------
-    >>> link_pairs(["S", "a", "b"], ["a,S", ("b", "a")]).tolist()
+    >>> link_pairs(["S", "a", "b"], ["a:S", ("b", "a")]).tolist()
     [[0, 1], [1, 2]]
     """
     ids = [str(v) for v in node_id]
@@ -78,20 +78,20 @@ def link_pairs(node_id, pairs, *, option="--force") -> np.ndarray:
     out = []
     for item in pairs or ():
         if isinstance(item, str):
-            parts = [t.strip() for t in item.split(",")]
+            parts = [t.strip() for t in item.split(":" if ":" in item else ",")]
         else:
             parts = [str(t).strip() for t in item]
         if len(parts) != 2 or not all(parts):
-            raise InputError(f"option {option}: each link must be two site ids as 'ID1,ID2', "
-                             f"got {item!r}; give e.g. {option} {ids[0]},{ids[-1]}")
+            raise InputError(f"option {option}: each link must be two site ids as 'ID1:ID2', "
+                             f"got {item!r}; give e.g. {option} {ids[0]}:{ids[-1]}")
         a, b = parts
         for v in (a, b):
             if v not in lookup:
-                raise InputError(f"option {option}: site id {v!r} (link {a},{b}) is not among "
+                raise InputError(f"option {option}: site id {v!r} (link {a}:{b}) is not among "
                                  f"the {len(ids)} sites (ids look like: "
                                  f"{', '.join(ids[:5])}); give existing ids")
         if a == b:
-            raise InputError(f"option {option}: link {a},{b} joins a site to itself; give two "
+            raise InputError(f"option {option}: link {a}:{b} joins a site to itself; give two "
                              "different site ids")
         out.append((lookup[a], lookup[b]))
     if not out:

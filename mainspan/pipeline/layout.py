@@ -336,7 +336,7 @@ def plan_layout(sites, settings=None, *, terrain=None, land_cost=None, cost_expr
                 raster_crs=None, on_nodata="barrier", sample_spacing_m=None, weights=None,
                 candidates="delaunay", k=8, max_link_m=None, max_complete_nodes=5000,
                 roots=None, allow_forest=False, use_site_z=False, system=None, design=None,
-                layout="tree", progress=None, extra_run_info=None, whole_cost=None):
+                layout="tree", progress=None, extra_run_info=None, whole_cost=None, **network):
     """Plan the cheapest network of mains over the ground for a set of sites.
 
     Parameters
@@ -395,6 +395,14 @@ def plan_layout(sites, settings=None, *, terrain=None, land_cost=None, cost_expr
     whole_cost : WholeCostSettings or dict, optional
         Limits of the ``"whole-cost"`` search (start α values, hops, designs
         per pass, total designs); see :class:`mainspan.graph.wholecost.WholeCostSettings`.
+    network : keywords, optional
+        The ``[network]`` settings (:mod:`mainspan.pipeline.extend`): ``existing`` (a line
+        layer of existing mains), ``existing_layer``, ``existing_diameter_field``,
+        ``existing_material_field``, ``tap_spacing_m``, ``tap_fee``, ``snap_m``,
+        ``forced_links`` / ``forbidden_links`` (site-id pairs ``"ID1:ID2"``),
+        ``forced_links_layer`` / ``forbidden_links_layer``, ``max_branch_sites``,
+        ``max_branch_flow_lps``, ``max_links_per_node``, ``source_capacity_lps``
+        (``{source id: L/s}``).
 
     Returns
     -------
@@ -420,7 +428,7 @@ def plan_layout(sites, settings=None, *, terrain=None, land_cost=None, cost_expr
                  sample_spacing_m=sample_spacing_m, weights=weights, candidates=candidates, k=k,
                  max_link_m=max_link_m, max_complete_nodes=max_complete_nodes, roots=roots,
                  allow_forest=allow_forest, use_site_z=use_site_z, system=system, design=design,
-                 layout=layout)
+                 layout=layout, **_network_kwargs(network))
     if settings is None:        # every value and combination checked before any work
         settings = PlanSettings.from_kwargs(**given)
     elif not isinstance(settings, PlanSettings):
@@ -429,7 +437,7 @@ def plan_layout(sites, settings=None, *, terrain=None, land_cost=None, cost_expr
                          "PlanSettings.from_sections(...) or pass keywords")
     else:
         defaults = _PLAN_DEFAULTS
-        clash = [n for n, v in given.items() if not _same(v, defaults[n])]
+        clash = [n for n, v in given.items() if not _same(v, defaults.get(n))]
         if clash:
             raise InputError(f"plan_layout: give settings= or the keywords, not both "
                              f"({', '.join(clash)}); fold them into the PlanSettings")
@@ -454,10 +462,14 @@ def plan_layout(sites, settings=None, *, terrain=None, land_cost=None, cost_expr
         root_idx = sites.index_of(roots)
     else:
         root_idx = sites.default_roots()
+    from .extend import network_stage        # exist15: existing mains, forced links, limits
+    net = network_stage(sites, kw, root_idx)
+    sites = net.sites
 
     say("candidates", 0, 1)
     cands = build_candidates(sites.xy, candidates, k=k, max_link_m=max_link_m,
                              max_complete_nodes=max_complete_nodes)
+    cands = net.candidates(cands)             # exist15
     edges = cands.edges
     say("candidates", 1, 1)
 
@@ -473,6 +485,7 @@ def plan_layout(sites, settings=None, *, terrain=None, land_cost=None, cost_expr
                         sample_spacing_m=sample_spacing_m, raster_crs=raster_crs,
                         progress=(lambda d, t: say("costs", d, t)),
                         node_id=sites.node_id, refuse_negative=True)
+    costs = net.costs(costs, cands)           # exist15
     say("costs", 1, 1)
 
     # Node elevations: DEM, or the sites' own Z when asked (and where given).
@@ -482,7 +495,11 @@ def plan_layout(sites, settings=None, *, terrain=None, land_cost=None, cost_expr
     elev = site_elevations(sites, dem_elev, use_site_z=use_site_z)
 
     say("tree", 0, 1)
-    tree, cert, directed = grow_tree(sites, edges, costs, elev, root_idx, layout=layout,
+    if net.active:                            # exist15
+        tree, cert = net.grow(sites, edges, costs, root_idx, allow_forest=allow_forest)
+        directed = None
+    else:
+      tree, cert, directed = grow_tree(sites, edges, costs, elev, root_idx, layout=layout,
                                      allow_forest=allow_forest, design=design,
                                      node_order=getattr(cands, "node_order", None),
                                      terrain_surface=surf, sample_spacing_m=sample_spacing_m,
@@ -497,6 +514,7 @@ def plan_layout(sites, settings=None, *, terrain=None, land_cost=None, cost_expr
                           terrain_surface=surf, sample_spacing_m=sample_spacing_m,
                           system=system, design=design, params=params, inputs=inputs,
                           progress=say)
+    net.finish(lay)                           # exist15
     if extra_run_info:
         lay.run_info.update({str(k_): str(v) for k_, v in extra_run_info.items()})
     lay.elapsed_s = time.perf_counter() - t0
@@ -508,6 +526,17 @@ _PLAN_DEFAULTS = dict(terrain=None, land_cost=None, cost_expression=None, class_
                       candidates="delaunay", k=8, max_link_m=None, max_complete_nodes=5000,
                       roots=None, allow_forest=False, use_site_z=False, system=None, design=None,
                       layout="tree")
+
+
+def _network_kwargs(network):
+    """The network-stage keywords of plan_layout (exist15); an unknown one is an error."""
+    from .extend import NETWORK_KEYS
+    from ..settings.schema import unknown_key
+    for name in network:
+        if name not in NETWORK_KEYS:
+            raise unknown_key("plan_layout()", name, sorted([*_PLAN_DEFAULTS, *NETWORK_KEYS]),
+                              what="keyword")
+    return {k: network.get(k) for k in NETWORK_KEYS}
 
 
 def _same(a, b):
@@ -800,7 +829,8 @@ def _design(lay, system, design, tree):
         profile_station_m=None if p is None else p.station_m,
         profile_ground_m=None if p is None else p.ground_m,
         land_cost=None if land is None else np.asarray(land, float),
-        settings=design, surface_share=_surface_share(lay, design), **_basis_fields(lay.nodes))
+        settings=design, surface_share=_surface_share(lay, design),
+        existing_link=lay.links.get("existing"), **_basis_fields(lay.nodes))
     ident = ("link_id", "from_node", "to_node", "grow_order", "candidate_index", "node_id",
              "role", "demand_lps", "elevation_m", "parent_node")
     for k_, v in res.link_fields.items():

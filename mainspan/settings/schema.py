@@ -30,6 +30,7 @@ SECTIONS = {
     "prices": "price table (project file only; on the command line use --prices FILE)",
     "output": "output",
     "execution": "execution (where the work runs; results are the same in every mode)",
+    "network": "existing mains, forced and forbidden links, limits (mainspan.pipeline.extend)",
 }
 
 #: ``tree``: Prim's tree of link costs; ``gravity``: minimum arborescence towards the
@@ -247,6 +248,47 @@ STATIC_SETTINGS = (
       "long", unit="s", lo=0.0, lo_open=True),
     S("execution", "chunk_links", "integer", 200000, "link costing of more links than this "
       "is split into tile-aligned chunks of about this many links, one task each", lo=1),
+    # network (mainspan.pipeline.extend): existing mains, forced/forbidden links, limits ------
+    S("network", "existing", "path", None, "line layer of existing mains to extend (optional "
+      "diameter_mm and material fields); they cost nothing to keep", run_info="network",
+      api="existing", metavar="LAYER"),
+    S("network", "existing_layer", "text", None, "layer of a multi-layer existing-mains file",
+      run_info="network", api="existing_layer"),
+    S("network", "existing_diameter_field", "text", None, "field of the existing mains "
+      "holding the nominal diameter in mm (default: 'diameter_mm' if present)",
+      run_info="network", api="existing_diameter_field"),
+    S("network", "existing_material_field", "text", None, "field of the existing mains "
+      "holding the material (default: 'material' if present)", run_info="network",
+      api="existing_material_field"),
+    S("network", "tap_spacing_m", "number", None, "also offer taps along every existing main "
+      "at this spacing (default: only the points nearest the sites)", unit="m", lo=0.0,
+      lo_open=True, run_info="network", api="tap_spacing_m"),
+    S("network", "tap_fee", "number", 0.0, "price of each new connection (tap) onto an "
+      "existing main, added to the link's cost", lo=0.0, run_info="network", api="tap_fee"),
+    S("network", "snap_m", "number", 1.0, "line ends and vertices this close to a site (or "
+      "to each other) are on it", unit="m", lo=0.0, lo_open=True, run_info="network",
+      api="snap_m"),
+    S("network", "forced_links", "list", None, "links always in the tree, as site-id pairs "
+      "ID1:ID2 (repeatable)", run_info="network", api="forced_links", repeat=True,
+      metavar="ID1:ID2"),
+    S("network", "forbidden_links", "list", None, "links never in the tree, as site-id pairs "
+      "ID1:ID2 (repeatable)", run_info="network", api="forbidden_links", repeat=True,
+      metavar="ID1:ID2"),
+    S("network", "forced_links_layer", "path", None, "line layer of forced links, each from "
+      "one site to another", run_info="network", api="forced_links_layer", metavar="LAYER"),
+    S("network", "forbidden_links_layer", "path", None, "line layer of forbidden links, each "
+      "from one site to another", run_info="network", api="forbidden_links_layer",
+      metavar="LAYER"),
+    S("network", "max_branch_sites", "integer", None, "most sites on one branch leaving a "
+      "source", lo=1, run_info="network", api="max_branch_sites"),
+    S("network", "max_branch_flow_lps", "number", None, "most demand carried by one branch "
+      "leaving a source", unit="L/s", lo=0.0, lo_open=True, run_info="network",
+      api="max_branch_flow_lps"),
+    S("network", "max_links_per_node", "integer", None, "most links meeting at one node "
+      "(a manifold, a source)", lo=2, run_info="network", api="max_links_per_node"),
+    S("network", "source_capacity_lps", "table", None, "demand each source can supply, as "
+      "ID=LPS (repeatable); every site is then served by one source within it",
+      run_info="network", api="source_capacity_lps", repeat=True, metavar="ID=LPS"),
 )
 
 # Units by name ending (longest first); names that carry none are listed below.
