@@ -136,6 +136,9 @@ def test_existing_main_is_extended_where_cheaper(tmp_path):
     assert pipe_len == pytest.approx(float(np.asarray(lay.links["surface_length_m"],
                                                      float)[new].sum()), rel=1e-9)
     assert "existing links too small" in lay.run_info["network_result"]
+    assert "network         existing mains: " in lay.summary()
+    from mainspan.report.html import report_html
+    assert "existing mains, forced links, limits" in report_html(lay)
 
 
 def test_existing_layer_errors_via_cli(tmp_path, capsys):
@@ -161,3 +164,30 @@ def test_existing_layer_errors_via_cli(tmp_path, capsys):
     info = pyogrio.read_dataframe(out_gpkg, layer="run_info")
     row = dict(zip(info["key"], info["value"]))
     assert "existing=" in row["network"] and "tap_fee=5" in row["network"]
+
+
+def test_project_file_network_section(tmp_path, capsys):
+    s, line = main_and_sites()
+    sites = write_points(tmp_path / "s.gpkg", s.xy, fields={"id": list(s.node_id),
+                                                           "role": list(s.role)})
+    mains = write_main(tmp_path / "m.gpkg", line, diameter=200.0)
+    proj = tmp_path / "plan.toml"
+    proj.write_text(f"""[sites]
+path = "{sites}"
+[network]
+existing = "{mains}"
+tap_fee = 12.5
+forbidden_links = ["h1:h2"]
+max_branch_sites = 5
+source_capacity_lps = {{ S = 100.0 }}
+[output]
+gpkg = "{tmp_path / 'out.gpkg'}"
+""")
+    code, out, err = run_cli(["plan", str(proj)], capsys)
+    assert code == 0, err
+    import pyogrio
+    info = pyogrio.read_dataframe(tmp_path / "out.gpkg", layer="run_info")
+    row = dict(zip(info["key"], info["value"]))
+    assert "tap_fee=12.5" in row["network"] and "max_branch_sites=5" in row["network"]
+    assert "source_capacity_lps=S=100" in row["network"]
+    assert "limits max_branch_sites=5" in row["network_result"]

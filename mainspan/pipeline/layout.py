@@ -219,6 +219,8 @@ class Layout:
                          f"designed ({ri['gravity_layout_saving_pct']} % saved)")
         if ri.get("depth_layout_rounds"):
             lines.insert(6, "depth-aware     " + depth_layout_text(ri))
+        if ri.get("network_result"):                          # exist15
+            lines.insert(6, "network         " + ri["network_result"])
         return "\n".join(lines)
 
 

@@ -137,6 +137,8 @@ def _summary(layout):
     cert = info.get("certificate", "")
     if cert:
         pairs.append(("optimality certificate", _e(T.pretty_value(cert))))
+    if info.get("network_result"):      # exist15: existing mains, forced links, limits
+        pairs.append(("existing mains, forced links, limits", _e(info["network_result"])))
     return T.kv_table(pairs, tid="summary")
 
 
