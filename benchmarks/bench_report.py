@@ -59,7 +59,7 @@ def pressure_layout(n, seed=0):
         sub[ends[k, 0]] += sub[ends[k, 1]]
     flow = sub[ends[:, 1]]
     nominal = np.select([flow > 50, flow > 10, flow > 2], [400, 250, 160], 110).astype(np.int64)
-    hl = 0.003 * length
+    hl = 0.0004 * length
     hgl = np.zeros(n)
     hgl[0] = 320.0
     for k in range(len(ends)):

@@ -29,7 +29,7 @@ import sys
 import numpy as np
 
 from ..safeio import HTML_MARKER
-from ..writers.tables import _csv_text, atomic_write, total_rows
+from ..writers.tables import _decimals, atomic_write, total_rows
 from . import tables as T
 from .tables import e as _e
 
@@ -361,6 +361,27 @@ def report_html(layout, *, title=None, extra_sections=(), n_sections=3, csv_base
             + "\n".join(body) + "\n</body></html>\n")
 
 
+def _csv_fast(columns: dict) -> str:
+    """CSV of columns, numbers rounded by unit suffix (as the report shows them), NaN empty.
+
+    Column-wise through pandas: the per-cell formatter of the links CSV takes ~30 s for
+    the tables of 100,000 sites.
+    """
+    import pandas as pd
+
+    out = {}
+    for k, v in columns.items():
+        a = np.asarray(v)
+        if a.dtype.kind == "f":
+            d = _decimals(k)
+            a = np.round(a, d) if d is not None else a
+            a = np.where(a == 0, 0.0, a)          # no "-0.0"
+        elif a.dtype.kind in "OUS":
+            a = a.astype(str)
+        out[k] = a
+    return pd.DataFrame(out).to_csv(index=False, lineterminator="\n", na_rep="")
+
+
 def _csv_tables(layout):
     ends = np.asarray(layout.link_ends, np.int64).reshape(-1, 2)
     out = {"nodes": dict(layout.nodes), "links": dict(layout.links)}
@@ -427,6 +448,6 @@ def write_report(layout, path, *, overwrite=False, title=None, extra_sections=()
         if name:
             if say:
                 say(f"report: {name}")
-            atomic_write(os.path.join(folder, name), _csv_text(cols), overwrite=overwrite,
+            atomic_write(os.path.join(folder, name), _csv_fast(cols), overwrite=overwrite,
                          what="report table")
     return atomic_write(path, text, overwrite=overwrite, what="report")
