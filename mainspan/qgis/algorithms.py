@@ -28,11 +28,21 @@ from qgis.core import (QgsCoordinateReferenceSystem, QgsProcessing, QgsProcessin
                        QgsProcessingParameterRasterLayer, QgsProcessingParameterString,
                        QgsProcessingParameterVectorLayer, QgsProcessingUtils,
                        QgsProviderRegistry, QgsVectorFileWriter)
+from qgis.PyQt.QtGui import QIcon
 
 from . import STAGE_SHARE
 from .params import OUTPUT_FILTERS, default_text, plan_parameters
 
-__all__ = ["MainspanAlgorithm", "PlanAlgorithm", "CheckAlgorithm", "Cancelled", "HELP_TAIL"]
+__all__ = ["MainspanAlgorithm", "PlanAlgorithm", "CheckAlgorithm", "Cancelled", "HELP_TAIL",
+           "icon", "ICON_PATH"]
+
+#: The plugin's own icon (drawn for mainspan: a tree of mains over contour lines).
+ICON_PATH = os.path.join(os.path.dirname(os.path.abspath(__file__)), "plugin", "icon.svg")
+
+
+def icon():
+    """The provider's and every algorithm's icon."""
+    return QIcon(ICON_PATH)
 
 
 def _caution():
@@ -115,7 +125,6 @@ class MainspanAlgorithm(QgsProcessingAlgorithm):
         return self._help + HELP_TAIL
 
     def icon(self):
-        from .provider import icon
         return icon()
 
     def createInstance(self):       # noqa: N802

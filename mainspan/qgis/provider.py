@@ -2,19 +2,11 @@
 
 from __future__ import annotations
 
-import os
-
 from qgis.core import QgsProcessingProvider
-from qgis.PyQt.QtGui import QIcon
+
+from .algorithms import ICON_PATH, icon  # noqa: F401 - re-exported: the provider's icon
 
 __all__ = ["MainspanProvider", "icon", "ICON_PATH"]
-
-#: The plugin's own icon (drawn for mainspan: a tree of mains over contour lines).
-ICON_PATH = os.path.join(os.path.dirname(os.path.abspath(__file__)), "plugin", "icon.svg")
-
-
-def icon():
-    return QIcon(ICON_PATH)
 
 
 class MainspanProvider(QgsProcessingProvider):
