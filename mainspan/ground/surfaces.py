@@ -85,7 +85,7 @@ _CHUNK_CELLS = 4_000_000       # traversal crossings held at once
 _CHUNK_POINTS = 2_000_000      # sample positions held at once
 _TILE_TARGET = 1024
 _DEFAULT_BUDGET_MB = 64
-_GDAL_CACHE_BYTES = 64 * 2 ** 20
+_GDAL_CACHE_BYTES = 8 * 2 ** 20   # blocks are read once into our own cache
 _ORDER_BLOCK = 256             # cells per side of the blocks that order links for locality
 _EXACT_IN_F32 = {np.dtype(t) for t in ("uint8", "int8", "uint16", "int16", "float16", "float32")}
 
