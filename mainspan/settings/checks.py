@@ -228,6 +228,12 @@ def _cross_rules(d, where):
             if isinstance(v, (int, float)) and v:
                 raise bad_value(where("costs", key), f"the {key} weight", "0 without a terrain "
                                 "raster", v, "give --terrain DEM, or drop the weight")
+    # --- route14: the corridor search moves by 8 or 16 steps ---
+    conn = _get(d, "candidates", "connectivity")
+    if conn is not None and conn not in (8, 16):
+        raise bad_value(where("candidates", "connectivity"), "the connectivity", "8 or 16", conn,
+                        "give --connectivity 8 or --connectivity 16")
+    # --- end route14 ---
     land = _get(d, "rasters", "land_cost")
     for key in ("cost_expression", "class_costs"):
         if _get(d, "rasters", key) is not None and land is None:

@@ -16,7 +16,7 @@ from dataclasses import dataclass
 from ..errors import InputError
 
 __all__ = ["Setting", "STATIC_SETTINGS", "SECTIONS", "LAYOUTS", "all_settings", "setting",
-           "by_flag", "unknown_key", "bad_value", "format_default", "design_help"]
+           "by_flag", "unknown_key", "bad_value", "format_default", "design_help", "ROUTES"]
 
 #: Project-file sections of a plan, in order, with the help-group title of each.
 SECTIONS = {
@@ -36,6 +36,12 @@ SECTIONS = {
 #: ``tree``: Prim's tree of link costs; ``gravity``: minimum arborescence towards the
 #: outlet; ``whole-cost``: the tree of least whole-life cost (:mod:`mainspan.graph.wholecost`).
 LAYOUTS = ("tree", "gravity", "whole-cost")
+
+# --- route14: routes ---
+#: ``straight``: straight links between sites; ``corridor``: least-cost routes over a cost
+#: grid that meet at junction nodes (:mod:`mainspan.graph.corridor`).
+ROUTES = ("straight", "corridor")
+# --- end route14 ---
 
 KINDS = ("text", "path", "number", "integer", "bool", "list", "table", "value")
 _EXPECT = {"text": "text", "path": "a file path", "number": "a number", "integer": "an integer",
@@ -180,6 +186,16 @@ STATIC_SETTINGS = (
       choices=("barrier", "skip", "error"), run_info="on_nodata", api="on_nodata"),
     S("rasters", "sample_spacing_m", "number", None, "terrain sampling step (default half a "
       "cell)", unit="m", lo=0.0, lo_open=True, api="sample_spacing_m"),
+    # --- route14: vector layers that stop or price mains (mainspan.ground.vectors) ---
+    S("rasters", "barrier", "list", None, "vector layer of polygons or lines no main may cross "
+      "(repeatable)", run_info="barrier", api="barrier", repeat=True, metavar="LAYER"),
+    S("rasters", "avoid", "table", None, "vector layer of polygons where each metre of main "
+      "costs PRICE more, as LAYER=PRICE (repeatable)", run_info="avoid", api="avoid",
+      repeat=True, metavar="LAYER=PRICE"),
+    S("rasters", "crossing", "table", None, "vector layer of lines (roads, streams, railways) "
+      "crossed at a lump sum PRICE each, as LAYER=PRICE (repeatable)", run_info="crossing",
+      api="crossing", repeat=True, metavar="LAYER=PRICE"),
+    # --- end route14 ---
     # candidates -------------------------------------------------------------
     S("candidates", "method", "text", "delaunay", "candidate builder: delaunay, knn, radius, "
       "complete, or a union such as delaunay+knn", flag="--candidates", run_info="candidates",
@@ -190,6 +206,26 @@ STATIC_SETTINGS = (
       lo_open=True, run_info="max_link_m", api="max_link_m"),
     S("candidates", "max_complete_nodes", "integer", 5000, "size limit of the complete builder",
       lo=2, api="max_complete_nodes"),
+    # --- route14: corridor routes (mainspan.ground.search, mainspan.graph.corridor) ---
+    S("candidates", "route", "text", "straight", "straight: straight links between sites; "
+      "corridor: least-cost routes over the rasters that meet at junction nodes",
+      choices=ROUTES, run_info="route", api="route"),
+    S("candidates", "connectivity", "integer", 16, "moves of the corridor search: 8, or 16 "
+      "with knight's moves (less grid bias)", lo=8, hi=16, run_info="connectivity",
+      api="connectivity"),
+    S("candidates", "corridor_cell_m", "number", None, "cell of the corridor search (default: "
+      "the land-cost raster's, else the terrain's)", unit="m", lo=0.0, lo_open=True,
+      run_info="corridor_cell_m", api="corridor_cell_m"),
+    S("candidates", "corridor_margin_m", "number", None, "reach of the corridor search beyond "
+      "the sites (default: a tenth of their extent plus two cells)", unit="m", lo=0.0,
+      run_info="corridor_margin_m", api="corridor_margin_m"),
+    S("candidates", "corridor_tolerance_pct", "number", 1.0, "how much straightening a routed "
+      "link may raise its price", unit="%", lo=0.0, hi=100.0,
+      run_info="corridor_tolerance_pct", api="corridor_tolerance_pct"),
+    S("candidates", "corridor_memory_mb", "number", 2048.0, "memory budget of the corridor "
+      "search", unit="MiB", lo=0.0, lo_open=True, run_info="corridor_memory_mb",
+      api="corridor_memory_mb"),
+    # --- end route14 ---
     # tree -------------------------------------------------------------------
     S("tree", "roots", "list", None, "root site id (repeatable); default: sites with role "
       "source/outlet", aliases=("--root",), run_info="roots", api="roots", repeat=True,

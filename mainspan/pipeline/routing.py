@@ -1,0 +1,236 @@
+"""Routing stages: barrier / avoid / crossing layers, and the corridor route.
+
+``--route straight`` (the default) keeps straight candidate links; the vector
+layers then price them as extra cost terms (:func:`vector_stage`).  ``--route
+corridor`` replaces the candidate and costing stages by :func:`corridor_stage`:
+a least-cost search over a grid windowed to the sites
+(:mod:`mainspan.ground.search`), Mehlhorn's candidates, Prim's tree, trunks
+merged at junction nodes and re-priced polylines (:mod:`mainspan.graph.corridor`).
+The tree, design and writers then run unchanged on the sites plus junctions;
+:func:`attach_paths` puts the routed geometry and its ground profile on the
+:class:`~mainspan.pipeline.layout.Layout`.
+
+Choices where the issue is silent (written down here):
+
+* cell size: ``--corridor-cell-m``, default the land-cost raster's cell (else
+  the terrain's; without rasters 1/250 of the sites' larger extent); with the
+  raster's own cell size the grid is snapped onto the raster's cells;
+* margin: ``--corridor-margin-m``, default 10 % of the sites' larger extent
+  plus two cells, so that routes can swing around obstacles near the edge;
+* ``on_nodata="error"``: the search avoids cells without data like barriers;
+  the exact re-pricing then still raises if a final polyline crosses a gap.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import replace
+
+import numpy as np
+
+from ..errors import InputError
+from ..settings.schema import ROUTES
+
+__all__ = ["vector_stage", "corridor_stage", "attach_paths", "junction_sites", "routing_run_info",
+           "ROUTES"]
+
+
+
+def vector_stage(sites, plan):
+    """The barrier, avoid and crossing layers of *plan*, read in the sites' CRS."""
+    from ..ground.vectors import VectorCosts
+
+    def items(key, priced):
+        v = plan.get(key)
+        if not v:
+            return ()
+        if isinstance(v, dict):
+            return tuple((k, float(p)) for k, p in v.items())
+        return tuple(v) if isinstance(v, (list, tuple)) else (v,)
+
+    return VectorCosts.read(working_crs=sites.crs, barrier=items("barrier", False),
+                            avoid=items("avoid", True), crossing=items("crossing", True))
+
+
+def _open_land(sites, land_cost, raster_crs):
+    from ..ground.surfaces import Surface, open_surface
+
+    if land_cost is None:
+        return None, []
+    named = isinstance(land_cost, dict)
+    items = land_cost.items() if named else [("land_cost", land_cost)]
+    out, opened = {}, []
+    for name, src in items:
+        if isinstance(src, Surface):
+            out[name] = src
+        else:
+            s = open_surface(src, working_crs=sites.crs, raster_crs=raster_crs, name=name)
+            opened.append(s)
+            out[name] = s
+    return (out if named else out["land_cost"]), opened
+
+
+def junction_sites(sites, junction_xy):
+    """*sites* with junction nodes appended (role ``junction``, no demand, ids ``J1``...)."""
+    k = len(junction_xy)
+    if not k:
+        return sites
+    have = set(str(v) for v in sites.node_id)
+    prefix = "J"
+    while any(f"{prefix}{i + 1}" in have for i in range(k)):
+        prefix += "_"
+    ids = np.array([f"{prefix}{i + 1}" for i in range(k)], dtype=object)
+
+    def ext(a, fill):
+        if a is None:
+            return None
+        return np.concatenate([np.asarray(a), np.full(k, fill, dtype=np.asarray(a).dtype)])
+
+    return replace(
+        sites, xy=np.concatenate([sites.xy, junction_xy]),
+        node_id=np.concatenate([np.asarray(sites.node_id, dtype=object), ids]),
+        role=np.concatenate([np.asarray(sites.role, dtype=object),
+                             np.full(k, "junction", dtype=object)]),
+        demand=ext(sites.demand, 0.0), elevation=ext(sites.elevation, np.nan),
+        area_ha=ext(sites.area_ha, 0.0), runoff_c=ext(sites.runoff_c, 0.0),
+        population=ext(sites.population, 0.0), min_pressure_m=ext(sites.min_pressure_m, np.nan))
+
+
+def corridor_stage(sites, plan, *, weights, root_idx, terrain_surface=None, vectors=None,
+                   progress=None):
+    """Least-cost routed links over *sites* (``--route corridor``).
+
+    Returns
+    -------
+    sites : Sites
+        The sites with the junction nodes appended.
+    cands : Candidates
+        The routed links (``method="corridor"``), already a tree.
+    costs : LinkCosts
+        Their polylines priced exactly (straight-mode costing, segment by segment).
+    net : CorridorNetwork
+        Paths and search figures.
+    """
+    from ..graph.candidates import Candidates
+    from ..graph.corridor import corridor_network, segment_pricer
+    from ..ground.search import cost_grid, grid_for_sites
+
+    say = progress or (lambda *a: None)
+    xy = sites.xy
+    extent = float(max(np.ptp(xy[:, 0]), np.ptp(xy[:, 1]), 1.0))
+    land, opened = _open_land(sites, plan.get("land_cost"), plan.get("raster_crs"))
+    try:
+        ref = None
+        if land is not None:
+            ref = land if not isinstance(land, dict) else next(iter(land.values()))
+        elif terrain_surface is not None:
+            ref = terrain_surface
+        cell = plan.get("corridor_cell_m")
+        if cell is None:
+            cell = ref.cell_size_m if ref is not None else extent / 250.0
+        cell = float(cell)
+        align = None
+        if ref is not None and ref.same_crs and math.isclose(ref.cell_size_m, cell, rel_tol=1e-9) \
+                and ref.transform.b == 0 and ref.transform.d == 0:
+            align = (ref.transform.c, ref.transform.f)
+        margin = plan.get("corridor_margin_m")
+        if margin is None:
+            margin = 0.1 * extent + 2 * cell
+        vectors = vectors if vectors is not None else _no_vectors()
+        grid = grid_for_sites(xy, cell_m=cell, margin_m=float(margin),
+                              memory_mb=float(plan.get("corridor_memory_mb") or 2048.0),
+                              terrain=terrain_surface is not None,
+                              crossings=bool(vectors.crossings), align_xy=align)
+        say("corridor grid", 0, 1)
+        barrier, avoid, xing, prices = vectors.burn(grid)
+        price_kw = dict(land_cost=land, cost_expression=plan.get("cost_expression"),
+                        class_costs=plan.get("class_costs"), raster_crs=plan.get("raster_crs"),
+                        on_nodata=plan.get("on_nodata", "barrier"))
+        sc = cost_grid(grid, working_crs=sites.crs, terrain=terrain_surface, weights=weights,
+                       barrier=barrier, avoid=avoid, crossing=xing, crossing_price=prices,
+                       connectivity=int(plan.get("connectivity") or 16), **price_kw)
+        say("corridor grid", 1, 1)
+        price = segment_pricer(working_crs=sites.crs, extra_terms=vectors.terms(),
+                               weights=weights, terrain=terrain_surface,
+                               sample_spacing_m=plan.get("sample_spacing_m"), **price_kw)
+        say("corridor search", 0, 1)
+        net = corridor_network(xy, sc, price, roots=tuple(int(r) for r in root_idx),
+                               tolerance_pct=float(plan.get("corridor_tolerance_pct", 1.0)),
+                               node_id=sites.node_id, barrier_names=vectors.names())
+        say("corridor search", 1, 1)
+    finally:
+        for s in opened:
+            s.close()
+    sites2 = junction_sites(sites, net.junction_xy)
+    L = len(net.edges)
+    cands = Candidates(edges=net.edges, origin=np.ones(L, np.uint8), origin_names=("corridor",),
+                       method="corridor")
+    net.grid = grid
+    return sites2, cands, net.costs, net
+
+
+def _no_vectors():
+    from ..ground.vectors import VectorCosts
+
+    return VectorCosts()
+
+
+def attach_paths(lay, net, *, terrain_surface=None, sample_spacing_m=None):
+    """Put the routed polylines (from node to to node) and their profiles on *lay*.
+
+    Sets ``lay.link_paths = (offsets, xy)`` in link order; with terrain,
+    replaces ``lay.profiles`` by the ground along each polyline.
+    """
+    from .layout import Profiles
+
+    eidx = np.asarray(lay.links["candidate_index"], np.int64)
+    from_idx = lay.link_ends[:, 0]
+    polys = []
+    for i, k in enumerate(eidx):
+        p = net.path(int(k))
+        polys.append(p if net.edges[k, 0] == from_idx[i] else p[::-1])
+    counts = np.array([len(p) for p in polys], np.int64)
+    off = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
+    lay.link_paths = (off, np.concatenate(polys) if polys else np.zeros((0, 2)))
+    lay.run_info["route"] = "corridor"
+    lay.run_info["n_junctions"] = str(len(net.junction_xy))
+    lay.run_info["corridor_grid"] = (f"{net.grid.nrows} x {net.grid.ncols} cells of "
+                                     f"{net.grid.cell_m:g} m")
+    if terrain_surface is None or not polys:
+        return lay
+    offs, sts, zs = [0], [], []
+    for p in polys:
+        o, st, z = terrain_surface.profiles(p[:-1], p[1:], spacing_m=sample_spacing_m)
+        seg_len = np.hypot(*(p[1:] - p[:-1]).T)
+        base = np.concatenate([[0.0], np.cumsum(seg_len)[:-1]])
+        s_all, z_all = [], []
+        for j in range(len(p) - 1):
+            a, b = int(o[j]), int(o[j + 1])
+            s_j, z_j = st[a:b] + base[j], z[a:b]
+            if j:                                   # the shared vertex once
+                s_j, z_j = s_j[1:], z_j[1:]
+            s_all.append(s_j)
+            z_all.append(z_j)
+        sts.append(np.concatenate(s_all))
+        zs.append(np.concatenate(z_all))
+        offs.append(offs[-1] + len(sts[-1]))
+    lay.profiles = Profiles(np.asarray(offs, np.int64), np.concatenate(sts), np.concatenate(zs))
+    return lay
+
+
+
+def routing_run_info(plan) -> dict:
+    """The ``run_info`` entries of the routing settings (straight or corridor)."""
+    def fmt(v):
+        if v is None:
+            return ""
+        if isinstance(v, dict):
+            return "; ".join(f"{k}={p:g}" for k, p in v.items())
+        if isinstance(v, (list, tuple)):
+            return "; ".join(str(x) for x in v)
+        return f"{v:g}" if isinstance(v, float) else str(v)
+
+    return {k: fmt(plan.get(k, d)) for k, d in (
+        ("route", "straight"), ("connectivity", 16), ("corridor_cell_m", None),
+        ("corridor_margin_m", None), ("corridor_tolerance_pct", 1.0),
+        ("corridor_memory_mb", 2048.0), ("barrier", None), ("avoid", None), ("crossing", None))}
