@@ -31,7 +31,7 @@ import numpy as np
 from ..errors import InputError
 from ..settings.schema import ROUTES
 
-__all__ = ["vector_stage", "corridor_stage", "attach_paths", "junction_sites", "routing_run_info",
+__all__ = ["vector_stage", "corridor_stage", "junction_stage", "attach_paths", "junction_sites", "routing_run_info",
            "ROUTES"]
 
 
@@ -169,6 +169,39 @@ def corridor_stage(sites, plan, *, weights, root_idx, terrain_surface=None, vect
     return sites2, cands, net.costs, net
 
 
+def junction_stage(sites, cands, costs, tree, plan, *, weights, terrain_surface=None,
+                   vectors=None):
+    """Steiner junctions on the straight tree (``--junctions``).
+
+    Returns the sites with the kept junctions appended, the new links (a tree,
+    as Candidates) and their exact prices.
+    """
+    from ..graph.candidates import Candidates
+    from ..graph.corridor import segment_pricer
+    from ..graph.steiner import add_junctions
+
+    vectors = vectors if vectors is not None else _no_vectors()
+    land, opened = _open_land(sites, plan.get("land_cost"), plan.get("raster_crs"))
+    try:
+        price = segment_pricer(working_crs=sites.crs, extra_terms=vectors.terms(), weights=weights,
+                               terrain=terrain_surface, land_cost=land,
+                               cost_expression=plan.get("cost_expression"),
+                               class_costs=plan.get("class_costs"),
+                               raster_crs=plan.get("raster_crs"),
+                               on_nodata=plan.get("on_nodata", "barrier"),
+                               sample_spacing_m=plan.get("sample_spacing_m"))
+        child = np.flatnonzero(tree.parent >= 0)
+        e = cands.edges[tree.parent_edge[child]]
+        res = add_junctions(sites.xy, e, price)
+    finally:
+        for s in opened:
+            s.close()
+    L = len(res.edges)
+    return (junction_sites(sites, res.junction_xy),
+            Candidates(edges=res.edges, origin=np.ones(L, np.uint8), origin_names=("junctions",),
+                       method=f"{cands.method}+junctions"), res.costs)
+
+
 def _no_vectors():
     from ..ground.vectors import VectorCosts
 
@@ -233,4 +266,5 @@ def routing_run_info(plan) -> dict:
     return {k: fmt(plan.get(k, d)) for k, d in (
         ("route", "straight"), ("connectivity", 16), ("corridor_cell_m", None),
         ("corridor_margin_m", None), ("corridor_tolerance_pct", 1.0),
-        ("corridor_memory_mb", 2048.0), ("barrier", None), ("avoid", None), ("crossing", None))}
+        ("corridor_memory_mb", 2048.0), ("barrier", None), ("avoid", None), ("crossing", None),
+        ("junctions", False))}

@@ -233,6 +233,10 @@ def _cross_rules(d, where):
     if conn is not None and conn not in (8, 16):
         raise bad_value(where("candidates", "connectivity"), "the connectivity", "8 or 16", conn,
                         "give --connectivity 8 or --connectivity 16")
+    if _get(d, "tree", "junctions", False) and _get(d, "candidates", "route") == "corridor":
+        raise bad_value(where("tree", "junctions"), "junctions", "used with straight links",
+                        "--route corridor", "drop --junctions: corridor routes make their own "
+                        "junctions where they share ground")
     # --- end route14 ---
     land = _get(d, "rasters", "land_cost")
     for key in ("cost_expression", "class_costs"):

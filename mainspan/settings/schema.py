@@ -238,6 +238,10 @@ STATIC_SETTINGS = (
       "arborescence towards the outlet with direction-dependent costs; whole-cost: the tree of "
       "least whole-life cost for pressure mains (sized pipes, trench, pump energy), searched "
       "from Prim's tree", choices=LAYOUTS, run_info="layout", api="layout"),
+    # --- route14: Steiner junctions for straight links (mainspan.graph.steiner) ---
+    S("tree", "junctions", "bool", False, "add junction nodes between straight links where "
+      "they lower the total (Steiner points)", run_info="junctions", api="junctions"),
+    # --- end route14 ---
     # design (the DesignSettings fields follow) --------------------------------
     S("design", "system", "text", None, "size and check the mains as this system",
       choices=("pressure", "gravity"), run_info="system", api="system"),
