@@ -37,7 +37,8 @@ A step joins two cell centres by a straight segment, priced as
 
 Memory: 4 bytes per cell of land cost, 4 of elevation (with terrain), 4 of
 crossing label (with crossings), and the search itself 8 (cost) + 4 (label)
-+ 1 (step) + 8 (heap) -- 21 to 33 bytes per cell (:func:`bytes_per_cell`).
++ 1 (step) + 16 (heap of costs and cells, slot per cell) -- 33 to 41 bytes per
+cell (:func:`bytes_per_cell`).
 
 References
 ----------
@@ -117,7 +118,7 @@ class SearchGrid:
 
 def bytes_per_cell(*, terrain: bool, crossings: bool) -> int:
     """Bytes held per grid cell during a search (inputs + Dijkstra state)."""
-    return 4 + 4 * bool(terrain) + 4 * bool(crossings) + 8 + 4 + 1 + 8
+    return 4 + 4 * bool(terrain) + 4 * bool(crossings) + 8 + 4 + 1 + 16
 
 
 def grid_for_sites(xy, *, cell_m, margin_m, memory_mb=2048.0, terrain=False, crossings=False,
@@ -313,76 +314,82 @@ def _step(land, z, xing, has_z, has_x, r, c, dr, dc, cell_m, params):
 
 
 @numba.njit(cache=True, inline="always")
-def _less(dist, a, b):
-    da = dist[a]
-    db = dist[b]
-    return da < db or (da == db and a < b)
+def _before(hk, hc, i, key, cell):
+    """Slot i of the heap comes before (key, cell): lower cost, then lower cell."""
+    return hk[i] < key or (hk[i] == key and hc[i] < cell)
 
 
 @numba.njit(cache=True)
-def _heap_push_or_decrease(heap, pos, size, dist, v):
-    if pos[v] < 0:
-        i = size
-        size += 1
-    else:
-        i = pos[v]
+def _sift_up(hk, hc, pos, i, key, cell):
     while i > 0:
-        p = (i - 1) >> 1
-        if _less(dist, v, heap[p]):
-            heap[i] = heap[p]
-            pos[heap[i]] = i
-            i = p
-        else:
+        p = (i - 1) >> 2
+        if _before(hk, hc, p, key, cell):
             break
-    heap[i] = v
-    pos[v] = i
-    return size
+        hk[i] = hk[p]
+        hc[i] = hc[p]
+        pos[hc[i]] = i
+        i = p
+    hk[i] = key
+    hc[i] = cell
+    pos[cell] = i
 
 
 @numba.njit(cache=True)
-def _heap_pop(heap, pos, size, dist):
-    top = heap[0]
+def _pop(hk, hc, pos, size):
+    """Remove the top of the 4-ary heap; returns the new size."""
+    top = hc[0]
+    pos[top] = -2
     size -= 1
-    last = heap[size]
+    if size == 0:
+        return size
+    key = hk[size]
+    cell = hc[size]
     i = 0
     while True:
-        c = 2 * i + 1
+        c = 4 * i + 1
         if c >= size:
             break
-        if c + 1 < size and _less(dist, heap[c + 1], heap[c]):
-            c += 1
-        if _less(dist, heap[c], last):
-            heap[i] = heap[c]
-            pos[heap[i]] = i
-            i = c
+        best = c
+        last = min(c + 4, size)
+        for q in range(c + 1, last):
+            if hk[q] < hk[best] or (hk[q] == hk[best] and hc[q] < hc[best]):
+                best = q
+        if _before(hk, hc, best, key, cell):
+            hk[i] = hk[best]
+            hc[i] = hc[best]
+            pos[hc[i]] = i
+            i = best
         else:
             break
-    if size > 0:
-        heap[i] = last
-        pos[last] = i
-    pos[top] = -2
-    return top, size
+    hk[i] = key
+    hc[i] = cell
+    pos[cell] = i
+    return size
 
 
 @numba.njit(cache=True)
 def _search(land, z, xing, has_z, has_x, cell_m, params, offsets, src_cells, dist, label, step):
     nr, nc = land.shape
     n = nr * nc
-    heap = np.empty(n, dtype=np.int32)
-    pos = np.full(n, -1, dtype=np.int32)
+    hk = np.empty(n, dtype=np.float64)     # 4-ary heap of (cost, cell) with decrease-key
+    hc = np.empty(n, dtype=np.int32)
+    pos = np.full(n, -1, dtype=np.int32)   # slot in the heap; -1 never seen, -2 settled
     size = 0
     for i in range(src_cells.shape[0]):
         v = src_cells[i]
         dist[v] = 0.0
         label[v] = i
         step[v] = -1
-        size = _heap_push_or_decrease(heap, pos, size, dist, v)
+        _sift_up(hk, hc, pos, size, 0.0, v)
+        size += 1
     nd = offsets.shape[0]
     while size > 0:
-        u, size = _heap_pop(heap, pos, size, dist)
+        u = hc[0]
+        du = hk[0]
+        size = _pop(hk, hc, pos, size)
         r = u // nc
         c = u - r * nc
-        du = dist[u]
+        lu = label[u]
         for k in range(nd):
             dr = offsets[k, 0]
             dc = offsets[k, 1]
@@ -391,17 +398,20 @@ def _search(land, z, xing, has_z, has_x, cell_m, params, offsets, src_cells, dis
             if r2 < 0 or r2 >= nr or c2 < 0 or c2 >= nc:
                 continue
             v = r2 * nc + c2
-            if pos[v] == -2:
+            pv = pos[v]
+            if pv == -2:
                 continue
             w = _step(land, z, xing, has_z, has_x, r, c, dr, dc, cell_m, params)
-            if math.isinf(w):
-                continue
             alt = du + w
             if alt < dist[v]:
                 dist[v] = alt
-                label[v] = label[u]
+                label[v] = lu
                 step[v] = k
-                size = _heap_push_or_decrease(heap, pos, size, dist, v)
+                if pv < 0:
+                    _sift_up(hk, hc, pos, size, alt, v)
+                    size += 1
+                else:
+                    _sift_up(hk, hc, pos, pv, alt, v)
 
 
 @numba.njit(cache=True)
