@@ -272,7 +272,7 @@ def cost_grid(grid, *, working_crs, terrain=None, land_cost=None, cost_expressio
 # --------------------------------------------------------------------------- numba kernels
 
 @numba.njit(cache=True, inline="always")
-def _step(land, z, xing, has_z, has_x, r, c, dr, dc, cell_m, params):
+def _step(land, z, xing, has_z, has_x, r, c, dr, dc, length, params):
     """Cost of the step from cell (r, c) to (r + dr, c + dc); inf if impassable."""
     r2 = r + dr
     c2 = c + dc
@@ -294,17 +294,15 @@ def _step(land, z, xing, has_z, has_x, r, c, dr, dc, cell_m, params):
         s = 0.25 * (va + vb + land[r + sr, c] + land[r + sr, c2])
     if math.isinf(s):
         return np.inf
-    length = cell_m * math.sqrt(adr * adr + adc * adc)
-    cost = length * s
-    dz = 0.0
+    cost = length * (s + params[0])
     if has_z:
         za = z[r, c]
         zb = z[r2, c2]
         if not (math.isnan(za) or math.isnan(zb)):
-            dz = float(zb) - float(za)
-    cost += params[0] * math.sqrt(length * length + dz * dz) + params[1] * abs(dz)
-    if params[2] >= 0.0 and abs(dz) / length * 100.0 > params[2]:
-        cost += params[3] * length
+            dz = abs(float(zb) - float(za))
+            cost += params[0] * (math.sqrt(length * length + dz * dz) - length) + params[1] * dz
+            if params[2] >= 0.0 and dz / length * 100.0 > params[2]:
+                cost += params[3] * length
     if has_x:
         xa = xing[r, c]
         xb = xing[r2, c2]
@@ -383,6 +381,9 @@ def _search(land, z, xing, has_z, has_x, cell_m, params, offsets, src_cells, dis
         _sift_up(hk, hc, pos, size, 0.0, v)
         size += 1
     nd = offsets.shape[0]
+    dlen = np.empty(nd)
+    for k in range(nd):
+        dlen[k] = cell_m * math.sqrt(offsets[k, 0] ** 2 + offsets[k, 1] ** 2)
     while size > 0:
         u = hc[0]
         du = hk[0]
@@ -401,7 +402,7 @@ def _search(land, z, xing, has_z, has_x, cell_m, params, offsets, src_cells, dis
             pv = pos[v]
             if pv == -2:
                 continue
-            w = _step(land, z, xing, has_z, has_x, r, c, dr, dc, cell_m, params)
+            w = _step(land, z, xing, has_z, has_x, r, c, dr, dc, dlen[k], params)
             alt = du + w
             if alt < dist[v]:
                 dist[v] = alt
@@ -436,8 +437,8 @@ def _boundary(land, z, xing, has_z, has_x, cell_m, params, offsets, dist, label,
             lv = label[v]
             if lv < 0 or lv == lu:
                 continue
-            w = _step(land, z, xing, has_z, has_x, r, c, offsets[k, 0], offsets[k, 1], cell_m,
-                      params)
+            w = _step(land, z, xing, has_z, has_x, r, c, offsets[k, 0], offsets[k, 1],
+                      cell_m * math.sqrt(offsets[k, 0] ** 2 + offsets[k, 1] ** 2), params)
             if math.isinf(w):
                 continue
             if not count_only:
@@ -463,7 +464,10 @@ def _step_list_costs(land, z, xing, has_z, has_x, cell_m, params, ncols, a, b, o
         c = a[i] - r * ncols
         r2 = b[i] // ncols
         c2 = b[i] - r2 * ncols
-        out[i] = _step(land, z, xing, has_z, has_x, r, c, r2 - r, c2 - c, cell_m, params)
+        dr = r2 - r
+        dc = c2 - c
+        out[i] = _step(land, z, xing, has_z, has_x, r, c, dr, dc,
+                       cell_m * math.sqrt(dr * dr + dc * dc), params)
 
 
 # --------------------------------------------------------------------------- public API
