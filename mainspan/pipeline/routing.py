@@ -268,3 +268,59 @@ def routing_run_info(plan) -> dict:
         ("corridor_margin_m", None), ("corridor_tolerance_pct", 1.0),
         ("corridor_memory_mb", 2048.0), ("barrier", None), ("avoid", None), ("crossing", None),
         ("junctions", False))}
+
+
+def path_lines(lay, has_z=False):
+    """Shapely line strings of the routed links (``lay.link_paths``), in link order.
+
+    With ``has_z`` each vertex takes the ground of the link's profile at its
+    chainage (or 0 where there is none), as straight links take their ends'.
+    """
+    import shapely
+
+    off, xy = lay.link_paths
+    out = []
+    p = lay.profiles if has_z else None
+    for i in range(len(off) - 1):
+        v = xy[off[i]:off[i + 1]]
+        if not has_z:
+            out.append(shapely.linestrings(v))
+            continue
+        ch = np.concatenate([[0.0], np.cumsum(np.hypot(*np.diff(v, axis=0).T))])
+        if p is not None:
+            st, g = p.of(i)
+            ok = np.isfinite(g)
+            z = np.interp(ch, st[ok], g[ok]) if ok.any() else np.zeros(len(v))
+        else:
+            z = np.zeros(len(v))
+        out.append(shapely.linestrings(np.column_stack([v, z])))
+    return np.asarray(out, dtype=object)
+
+
+def straight_reference(sites, plan, *, weights, root_idx, terrain_surface=None, vectors=None):
+    """Total price of the straight-link Prim tree over Delaunay candidates (for the saving)."""
+    from ..graph.candidates import build_candidates
+    from ..graph.corridor import segment_pricer
+    from ..graph.spanning import prim_tree
+
+    vectors = vectors if vectors is not None else _no_vectors()
+    cands = build_candidates(sites.xy, "delaunay", k=8, max_link_m=None)
+    land, opened = _open_land(sites, plan.get("land_cost"), plan.get("raster_crs"))
+    try:
+        price = segment_pricer(working_crs=sites.crs, extra_terms=vectors.terms(), weights=weights,
+                               terrain=terrain_surface, land_cost=land,
+                               cost_expression=plan.get("cost_expression"),
+                               class_costs=plan.get("class_costs"),
+                               raster_crs=plan.get("raster_crs"),
+                               on_nodata=plan.get("on_nodata", "barrier"),
+                               sample_spacing_m=plan.get("sample_spacing_m"))
+        lc = price(sites.xy[cands.edges[:, 0]], sites.xy[cands.edges[:, 1]])[0]
+    finally:
+        for s in opened:
+            s.close()
+    ok = lc.passable
+    try:
+        t = prim_tree(sites.n, cands.edges[ok], lc.total[ok], roots=root_idx)
+    except InputError:
+        return float("nan")
+    return float(t.weight)
