@@ -36,6 +36,7 @@ PRIM = ("tests/test_spanning.py", "tests/test_certificate.py")
 SURFACES = ("tests/test_surfaces.py", "tests/test_costs.py", "tests/test_cli_rasters.py")
 FRICTION = ("tests/test_hydraulics_formulas.py", "tests/test_hydraulics_properties.py")
 NETWORK = ("tests/test_network.py",)
+CORRIDOR = ("tests/test_search.py", "tests/test_corridor.py")
 
 
 @dataclass(frozen=True)
@@ -139,6 +140,14 @@ MUTATIONS = [
              "keep = np.flatnonzero(np.isfinite(w))",
              ("tests/test_constraints.py",), "links inside a forced group stay in the "
              "contracted graph (self loops)"),
+    # --- corridor search and layout (route14) ---
+    Mutation("knight-wrong-cell", "mainspan/ground/search.py",
+             "s = 0.25 * (va + vb + land[r, c + sc] + land[r2, c + sc])",
+             "s = 0.25 * (va + vb + land[r2, c] + land[r2, c + sc])",
+             CORRIDOR, "a knight's move reads the wrong intermediate cell"),
+    Mutation("bridge-no-step", "mainspan/ground/search.py",
+             "out_cost[m] = dist[u] + w + dist[v]", "out_cost[m] = dist[u] + dist[v]",
+             CORRIDOR, "Mehlhorn's bridge cost leaves out the step between the regions"),
 ]
 
 
