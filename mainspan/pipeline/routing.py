@@ -324,3 +324,98 @@ def straight_reference(sites, plan, *, weights, root_idx, terrain_surface=None, 
     except InputError:
         return float("nan")
     return float(t.weight)
+
+
+# --------------------------------------------------------------------------- plan_layout hooks
+
+def route_stage(sites, plan, *, weights, root_idx, terrain_surface=None, progress=None):
+    """Candidates and their prices for either route (the hook in ``plan_layout``).
+
+    ``straight``: the candidate builders, priced by ``price_links`` with the
+    barrier / avoid / crossing terms; ``corridor``: :func:`corridor_stage`.
+
+    Returns
+    -------
+    (sites, cands, costs, routed) where ``routed`` is a dict with the vector
+    layers (``vectors``), the corridor network (``net``, or None) and the
+    straight reference total (``straight_total``, corridor only).
+    """
+    from ..ground.costs import price_links
+    from .stages import candidates_stage
+
+    say = progress or (lambda *a: None)
+    vectors = vector_stage(sites, plan)
+    routed = {"vectors": vectors, "net": None}
+    if plan.get("route", "straight") == "corridor":
+        routed["straight_total"] = straight_reference(
+            sites, plan, weights=weights, root_idx=root_idx, terrain_surface=terrain_surface,
+            vectors=vectors)
+        sites2, cands, costs, net = corridor_stage(sites, plan, weights=weights, root_idx=root_idx,
+                                                   terrain_surface=terrain_surface,
+                                                   vectors=vectors, progress=progress)
+        routed["net"] = net
+        return sites2, cands, costs, routed
+    say("candidates", 0, 1)
+    cands = candidates_stage(sites, plan)
+    say("candidates", 1, 1)
+    say("costs", 0, 1)
+    costs = price_links(sites.xy, cands.edges, working_crs=sites.crs, terrain=terrain_surface,
+                        land_cost=plan.get("land_cost"),
+                        cost_expression=plan.get("cost_expression"),
+                        class_costs=plan.get("class_costs"), weights=weights,
+                        on_nodata=plan.get("on_nodata", "barrier"),
+                        sample_spacing_m=plan.get("sample_spacing_m"),
+                        raster_crs=plan.get("raster_crs"), extra_terms=vectors.terms(),
+                        progress=(lambda d, t: say("costs", d, t)), node_id=sites.node_id,
+                        refuse_negative=True)
+    say("costs", 1, 1)
+    return sites, cands, costs, routed
+
+
+def junctions_after_tree(sites, cands, costs, tree, cert, plan, *, weights, root_idx,
+                         terrain_surface=None, routed=None):
+    """``--junctions``: Steiner junctions on Prim's straight tree, then the tree regrown.
+
+    Returns (sites, cands, costs, tree, cert, elev); unchanged without the setting.
+    The certificate then covers the tree over the new links (which are a tree).
+    """
+    from .stages import elevation_stage, grow_tree
+
+    if not plan.get("junctions") or plan.get("route", "straight") == "corridor":
+        return sites, cands, costs, tree, cert, None
+    before = float(np.asarray(costs.total)[tree.parent_edge[tree.parent >= 0]].sum())
+    sites2, cands2, costs2 = junction_stage(sites, cands, costs, tree, plan, weights=weights,
+                                            terrain_surface=terrain_surface,
+                                            vectors=(routed or {}).get("vectors"))
+    elev = elevation_stage(sites2, terrain_surface, use_site_z=plan.get("use_site_z", False))
+    tree2, cert2, _ = grow_tree(sites2, cands2.edges, costs2, elev, root_idx)
+    if routed is not None:
+        routed["straight_total"] = before
+    return sites2, cands2, costs2, tree2, cert2, elev
+
+
+def finish_layout(lay, routed, plan, *, terrain_surface=None, tree=None):
+    """Routed geometry, the design on it, and the routing entries of ``run_info``.
+
+    ``lay`` was assembled without a design when the route is a corridor, so
+    that the design reads the ground along the routed polylines.
+    """
+    from .assemble import design_stage
+
+    net = routed.get("net")
+    if net is not None:
+        attach_paths(lay, net, terrain_surface=terrain_surface,
+                     sample_spacing_m=plan.get("sample_spacing_m"))
+        system = plan.get("system")
+        if system is not None:
+            design_stage(lay, system, plan.get("design"), tree)
+    info = routing_run_info(plan)
+    nj = int((np.asarray(lay.nodes["role"]) == "junction").sum())
+    info["n_junctions"] = str(nj)
+    ref = routed.get("straight_total")
+    if ref is not None and np.isfinite(ref) and ref > 0:
+        tot = lay.total("cost")
+        info["straight_total_cost"] = f"{ref:.3f}"
+        info["routing_saving_pct"] = f"{100.0 * (ref - tot) / ref:.2f}"
+    lay.run_info.update(info)
+    return lay
