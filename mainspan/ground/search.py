@@ -538,8 +538,11 @@ def _x(sc):
 
 @numba.njit(cache=True)
 def _trace(step, offsets, ncols, cell, out):
+    """Cells back to the source into *out*; -1 when *out* is too short."""
     n = 0
     while True:
+        if n == out.shape[0]:
+            return -1
         out[n] = cell
         n += 1
         k = step[cell]
@@ -553,9 +556,13 @@ def _trace(step, offsets, ncols, cell, out):
 
 def trace_to_source(step, offsets, ncols, cell) -> np.ndarray:
     """Follow the recorded steps from *cell* back to its source (inclusive)."""
-    buf = np.empty(step.shape[0], dtype=np.int64)
-    n = _trace(step, offsets, ncols, np.int64(cell), buf)
-    return buf[:n].copy()
+    size = 4 * (ncols + step.shape[0] // max(ncols, 1)) + 16
+    while True:
+        buf = np.empty(min(size, step.shape[0] + 1), dtype=np.int64)
+        n = _trace(step, offsets, ncols, np.int64(cell), buf)
+        if n >= 0:
+            return buf[:n].copy()
+        size *= 4
 
 
 def step_costs(costs: StepCosts, a, b) -> np.ndarray:
