@@ -159,6 +159,9 @@ class Layout:
         else:
             lines = shapely.linestrings(c[:, :, :2]) if self.n_links else np.array([], object)
             pts = shapely.points(self.node_xy)
+        if getattr(self, "link_paths", None) is not None and self.n_links:   # route14: routed
+            from .routing import path_lines
+            lines = path_lines(self, has_z)
         links = gpd.GeoDataFrame(pd.DataFrame({k: _col(v) for k, v in self.links.items()}),
                                  geometry=np.asarray(lines, dtype=object), crs=self.crs)
         nodes = gpd.GeoDataFrame(pd.DataFrame({k: _col(v) for k, v in self.nodes.items()}),
@@ -338,7 +341,10 @@ def plan_layout(sites, settings=None, *, terrain=None, land_cost=None, cost_expr
                 raster_crs=None, on_nodata="barrier", sample_spacing_m=None, weights=None,
                 candidates="delaunay", k=8, max_link_m=None, max_complete_nodes=5000,
                 roots=None, allow_forest=False, use_site_z=False, system=None, design=None,
-                layout="tree", progress=None, extra_run_info=None, whole_cost=None, **network):
+                layout="tree", route="straight", connectivity=16, corridor_cell_m=None,
+                corridor_margin_m=None, corridor_tolerance_pct=1.0, corridor_memory_mb=2048.0,
+                barrier=None, avoid=None, crossing=None, junctions=False, progress=None,
+                extra_run_info=None, whole_cost=None, **network):
     """Plan the cheapest network of mains over the ground for a set of sites.
 
     Parameters
@@ -390,6 +396,24 @@ def plan_layout(sites, settings=None, *, terrain=None, land_cost=None, cost_expr
         value -- from Prim's and Prim–Dijkstra trade-off trees improved by link
         exchange (:mod:`mainspan.graph.wholecost`); Prim's certificate still covers
         Prim's tree of link costs, reported beside it.
+    route : {"straight", "corridor"}, default "straight"
+        ``"corridor"`` routes links along least-cost paths over the rasters,
+        merged into trunks at junction nodes (:mod:`mainspan.pipeline.routing`).
+    connectivity : {8, 16}, default 16
+        Moves of the corridor search (16: with knight's moves).
+    corridor_cell_m, corridor_margin_m : float, optional
+        Cell and reach of the corridor search grid (defaults: the raster's
+        cell; a tenth of the sites' extent plus two cells).
+    corridor_tolerance_pct : float, default 1.0
+        How much straightening may raise a routed link's price.
+    corridor_memory_mb : float, default 2048
+        Memory budget of the corridor search.
+    barrier : sequence of path, optional
+        Vector layers of polygons or lines no main may cross.
+    avoid, crossing : dict of path -> price, optional
+        Polygons priced per metre inside; lines priced per crossing.
+    junctions : bool, default False
+        Add Steiner junctions between straight links where they pay.
     progress : callable, optional
         ``progress(stage, done, total)``.
     extra_run_info : dict, optional
@@ -430,7 +454,11 @@ def plan_layout(sites, settings=None, *, terrain=None, land_cost=None, cost_expr
                  sample_spacing_m=sample_spacing_m, weights=weights, candidates=candidates, k=k,
                  max_link_m=max_link_m, max_complete_nodes=max_complete_nodes, roots=roots,
                  allow_forest=allow_forest, use_site_z=use_site_z, system=system, design=design,
-                 layout=layout, **_network_kwargs(network))
+                 layout=layout, route=route, connectivity=connectivity,
+                 corridor_cell_m=corridor_cell_m, corridor_margin_m=corridor_margin_m,
+                 corridor_tolerance_pct=corridor_tolerance_pct,
+                 corridor_memory_mb=corridor_memory_mb, barrier=barrier, avoid=avoid,
+                 crossing=crossing, junctions=junctions, **_network_kwargs(network))
     if settings is None:        # every value and combination checked before any work
         settings = PlanSettings.from_kwargs(**given)
     elif not isinstance(settings, PlanSettings):
@@ -468,27 +496,19 @@ def plan_layout(sites, settings=None, *, terrain=None, land_cost=None, cost_expr
     net = network_stage(sites, kw, root_idx)
     sites = net.sites
 
-    say("candidates", 0, 1)
-    cands = build_candidates(sites.xy, candidates, k=k, max_link_m=max_link_m,
-                             max_complete_nodes=max_complete_nodes)
-    cands = net.candidates(cands)             # exist15
-    edges = cands.edges
-    say("candidates", 1, 1)
-
     surf = None
     if terrain is not None:
         from ..ground.surfaces import Surface, open_surface
         surf = terrain if isinstance(terrain, Surface) else open_surface(
             terrain, working_crs=sites.crs, raster_crs=raster_crs)
-    say("costs", 0, 1)
-    costs = price_links(sites.xy, edges, working_crs=sites.crs, terrain=surf,
-                        land_cost=land_cost, cost_expression=cost_expression,
-                        class_costs=class_costs, weights=weights, on_nodata=on_nodata,
-                        sample_spacing_m=sample_spacing_m, raster_crs=raster_crs,
-                        progress=(lambda d, t: say("costs", d, t)),
-                        node_id=sites.node_id, refuse_negative=True)
-    costs = net.costs(costs, cands)           # exist15
-    say("costs", 1, 1)
+    # --- route14: candidates and prices of the straight or corridor route ---
+    from . import routing
+    sites, cands, costs, routed = routing.route_stage(
+        sites, kw, weights=weights, root_idx=root_idx, terrain_surface=surf, progress=say,
+        extend_candidates=net.candidates, extend_costs=net.costs,           # exist15
+        network_active=net.active)
+    edges = cands.edges
+    # --- end route14 ---
 
     # Node elevations: DEM, or the sites' own Z when asked (and where given).
     dem_elev = None
@@ -506,17 +526,36 @@ def plan_layout(sites, settings=None, *, terrain=None, land_cost=None, cost_expr
                                      node_order=getattr(cands, "node_order", None),
                                      terrain_surface=surf, sample_spacing_m=sample_spacing_m,
                                      system=system, whole_cost=whole_cost)
+    # --- route14: Steiner junctions on the straight tree (--junctions) ---
+    sites, cands, costs, tree, cert, el2 = routing.junctions_after_tree(
+        sites, cands, costs, tree, cert, kw, weights=weights, root_idx=root_idx,
+        terrain_surface=surf, routed=routed,
+        grow=lambda s_, e_, c_, z_, r_: grow_tree(s_, e_, c_, z_, r_, system=system),
+        elevations=lambda s_: site_elevations(
+            s_, None if surf is None else node_elevations(s_.xy, surf), use_site_z=use_site_z))
+    elev = elev if el2 is None else el2
+    # --- end route14 ---
     say("tree", 1, 1)
     land_paths = land_cost if isinstance(land_cost, dict) else (
         {"land_cost": land_cost} if land_cost is not None else {})
     params = run_info_params({**kw, "weights": weights})
     inputs = [("sites", sites.path), ("terrain", getattr(terrain, "path", terrain)),
               *land_paths.items()]
+    corridor = routed["net"] is not None      # route14: design after the routed geometry
     lay = assemble_layout(sites, cands, costs, elev, tree, cert, directed,
                           terrain_surface=surf, sample_spacing_m=sample_spacing_m,
-                          system=system, design=design, params=params, inputs=inputs,
-                          progress=say)
+                          system=None if corridor else system, design=design, params=params,
+                          inputs=inputs, progress=say)
     net.finish(lay)                           # exist15
+    # --- route14: routed geometry, its design, routing run_info ---
+    def _redesign(lay_):
+        if system is not None:
+            _design(lay_, system, design, tree)
+        lay_.run_info = _run_info(lay_, sites, cands, costs, tree, cert, directed, system,
+                                  params or {}, inputs)
+    routing.finish_layout(lay, routed, kw, terrain_surface=surf,
+                          redesign=_redesign if corridor else None)
+    # --- end route14 ---
     if extra_run_info:
         lay.run_info.update({str(k_): str(v) for k_, v in extra_run_info.items()})
     lay.elapsed_s = time.perf_counter() - t0
@@ -527,7 +566,10 @@ _PLAN_DEFAULTS = dict(terrain=None, land_cost=None, cost_expression=None, class_
                       raster_crs=None, on_nodata="barrier", sample_spacing_m=None, weights=None,
                       candidates="delaunay", k=8, max_link_m=None, max_complete_nodes=5000,
                       roots=None, allow_forest=False, use_site_z=False, system=None, design=None,
-                      layout="tree")
+                      layout="tree", route="straight", connectivity=16, corridor_cell_m=None,
+                      corridor_margin_m=None, corridor_tolerance_pct=1.0,
+                      corridor_memory_mb=2048.0, barrier=None, avoid=None, crossing=None,
+                      junctions=False)
 
 
 def _network_kwargs(network):

@@ -225,10 +225,6 @@ def attach_paths(lay, net, *, terrain_surface=None, sample_spacing_m=None):
     counts = np.array([len(p) for p in polys], np.int64)
     off = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
     lay.link_paths = (off, np.concatenate(polys) if polys else np.zeros((0, 2)))
-    lay.run_info["route"] = "corridor"
-    lay.run_info["n_junctions"] = str(len(net.junction_xy))
-    lay.run_info["corridor_grid"] = (f"{net.grid.nrows} x {net.grid.ncols} cells of "
-                                     f"{net.grid.cell_m:g} m")
     if terrain_surface is None or not polys:
         return lay
     offs, sts, zs = [0], [], []
@@ -328,7 +324,8 @@ def straight_reference(sites, plan, *, weights, root_idx, terrain_surface=None, 
 
 # --------------------------------------------------------------------------- plan_layout hooks
 
-def route_stage(sites, plan, *, weights, root_idx, terrain_surface=None, progress=None):
+def route_stage(sites, plan, *, weights, root_idx, terrain_surface=None, progress=None,
+                extend_candidates=None, extend_costs=None, network_active=False):
     """Candidates and their prices for either route (the hook in ``plan_layout``).
 
     ``straight``: the candidate builders, priced by ``price_links`` with the
@@ -339,14 +336,20 @@ def route_stage(sites, plan, *, weights, root_idx, terrain_surface=None, progres
     (sites, cands, costs, routed) where ``routed`` is a dict with the vector
     layers (``vectors``), the corridor network (``net``, or None) and the
     straight reference total (``straight_total``, corridor only).
+    ``extend_candidates(cands)`` and ``extend_costs(costs, cands)`` are the
+    network stage's additions (existing mains, forced links) to straight links.
     """
+    from ..graph.candidates import build_candidates
     from ..ground.costs import price_links
-    from .stages import candidates_stage
 
     say = progress or (lambda *a: None)
     vectors = vector_stage(sites, plan)
     routed = {"vectors": vectors, "net": None}
     if plan.get("route", "straight") == "corridor":
+        if network_active:
+            raise InputError("--route corridor cannot yet be combined with existing mains, "
+                             "forced or forbidden links or branch limits; plan those with "
+                             "--route straight")
         routed["straight_total"] = straight_reference(
             sites, plan, weights=weights, root_idx=root_idx, terrain_surface=terrain_surface,
             vectors=vectors)
@@ -356,7 +359,11 @@ def route_stage(sites, plan, *, weights, root_idx, terrain_surface=None, progres
         routed["net"] = net
         return sites2, cands, costs, routed
     say("candidates", 0, 1)
-    cands = candidates_stage(sites, plan)
+    cands = build_candidates(sites.xy, plan.get("candidates", "delaunay"), k=plan.get("k", 8),
+                             max_link_m=plan.get("max_link_m"),
+                             max_complete_nodes=plan.get("max_complete_nodes", 5000))
+    if extend_candidates is not None:
+        cands = extend_candidates(cands)
     say("candidates", 1, 1)
     say("costs", 0, 1)
     costs = price_links(sites.xy, cands.edges, working_crs=sites.crs, terrain=terrain_surface,
@@ -368,48 +375,51 @@ def route_stage(sites, plan, *, weights, root_idx, terrain_surface=None, progres
                         raster_crs=plan.get("raster_crs"), extra_terms=vectors.terms(),
                         progress=(lambda d, t: say("costs", d, t)), node_id=sites.node_id,
                         refuse_negative=True)
+    if extend_costs is not None:
+        costs = extend_costs(costs, cands)
     say("costs", 1, 1)
     return sites, cands, costs, routed
 
 
-def junctions_after_tree(sites, cands, costs, tree, cert, plan, *, weights, root_idx,
-                         terrain_surface=None, routed=None):
+def junctions_after_tree(sites, cands, costs, tree, cert, plan, *, weights, root_idx, grow,
+                         elevations, terrain_surface=None, routed=None):
     """``--junctions``: Steiner junctions on Prim's straight tree, then the tree regrown.
 
-    Returns (sites, cands, costs, tree, cert, elev); unchanged without the setting.
-    The certificate then covers the tree over the new links (which are a tree).
+    ``grow(sites, edges, costs, elev, root_idx)`` and ``elevations(sites)`` are
+    the pipeline's tree and elevation stages.  Returns (sites, cands, costs,
+    tree, cert, elev); unchanged (elev None) without the setting.  The
+    certificate then covers the tree over the new links (which are a tree).
     """
-    from .stages import elevation_stage, grow_tree
-
     if not plan.get("junctions") or plan.get("route", "straight") == "corridor":
         return sites, cands, costs, tree, cert, None
     before = float(np.asarray(costs.total)[tree.parent_edge[tree.parent >= 0]].sum())
     sites2, cands2, costs2 = junction_stage(sites, cands, costs, tree, plan, weights=weights,
                                             terrain_surface=terrain_surface,
                                             vectors=(routed or {}).get("vectors"))
-    elev = elevation_stage(sites2, terrain_surface, use_site_z=plan.get("use_site_z", False))
-    tree2, cert2, _ = grow_tree(sites2, cands2.edges, costs2, elev, root_idx)
+    elev = elevations(sites2)
+    tree2, cert2, _ = grow(sites2, cands2.edges, costs2, elev, root_idx)
     if routed is not None:
         routed["straight_total"] = before
     return sites2, cands2, costs2, tree2, cert2, elev
 
 
-def finish_layout(lay, routed, plan, *, terrain_surface=None, tree=None):
+def finish_layout(lay, routed, plan, *, terrain_surface=None, redesign=None):
     """Routed geometry, the design on it, and the routing entries of ``run_info``.
 
-    ``lay`` was assembled without a design when the route is a corridor, so
-    that the design reads the ground along the routed polylines.
+    For a corridor route ``lay`` was assembled without a design, so that
+    ``redesign(lay)`` (the pipeline's design and run_info stages) reads the
+    ground along the routed polylines.
     """
-    from .assemble import design_stage
-
     net = routed.get("net")
     if net is not None:
         attach_paths(lay, net, terrain_surface=terrain_surface,
                      sample_spacing_m=plan.get("sample_spacing_m"))
-        system = plan.get("system")
-        if system is not None:
-            design_stage(lay, system, plan.get("design"), tree)
+        if redesign is not None:
+            redesign(lay)
     info = routing_run_info(plan)
+    if net is not None:
+        info["corridor_grid"] = (f"{net.grid.nrows} x {net.grid.ncols} cells of "
+                                 f"{net.grid.cell_m:g} m")
     nj = int((np.asarray(lay.nodes["role"]) == "junction").sum())
     info["n_junctions"] = str(nj)
     ref = routed.get("straight_total")
