@@ -214,8 +214,6 @@ def attach_paths(lay, net, *, terrain_surface=None, sample_spacing_m=None):
     Sets ``lay.link_paths = (offsets, xy)`` in link order; with terrain,
     replaces ``lay.profiles`` by the ground along each polyline.
     """
-    from .layout import Profiles
-
     eidx = np.asarray(lay.links["candidate_index"], np.int64)
     from_idx = lay.link_ends[:, 0]
     polys = []
@@ -225,7 +223,7 @@ def attach_paths(lay, net, *, terrain_surface=None, sample_spacing_m=None):
     counts = np.array([len(p) for p in polys], np.int64)
     off = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
     lay.link_paths = (off, np.concatenate(polys) if polys else np.zeros((0, 2)))
-    if terrain_surface is None or not polys:
+    if terrain_surface is None or not polys or lay.profiles is None:
         return lay
     offs, sts, zs = [0], [], []
     for p in polys:
@@ -243,7 +241,8 @@ def attach_paths(lay, net, *, terrain_surface=None, sample_spacing_m=None):
         sts.append(np.concatenate(s_all))
         zs.append(np.concatenate(z_all))
         offs.append(offs[-1] + len(sts[-1]))
-    lay.profiles = Profiles(np.asarray(offs, np.int64), np.concatenate(sts), np.concatenate(zs))
+    lay.profiles = replace(lay.profiles, offsets=np.asarray(offs, np.int64),
+                           station_m=np.concatenate(sts), ground_m=np.concatenate(zs))
     return lay
 
 
