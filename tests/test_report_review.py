@@ -62,6 +62,10 @@ def test_plan_map_says_when_no_site_had_a_source_role():
 def test_gravity_section_bands_match_networkx_and_the_design():
     nx = pytest.importorskip("networkx")
     lay = make_layout("gravity")
+    # a drop at A: the pipe from D arrives 0.5 m above the manhole's outgoing invert; the
+    # band shows the manhole invert (outgoing pipe), as the node schedule does
+    lay.links["invert_from_m"] = lay.links["invert_from_m"].copy()
+    lay.links["invert_from_m"][3] += 0.5
     fig = section.long_section(lay, to_node="F")
     d = fig.mainspan_section
     ids = [str(lay.nodes["node_id"][i]) for i in d["path"]]
