@@ -244,6 +244,8 @@ def _sections(layout, n_sections, ids, say):
     from .plots import figure_bytes, longest_paths
     from .section import fit_exaggeration, long_section, section_data
 
+    if layout.n_nodes > _LABEL_LIMIT():
+        n_sections = 1          # large layouts: the longest path only (each figure costs seconds)
     full = longest_paths(layout, k=n_sections)
     if not full:
         return "<p>No links.</p>"
