@@ -111,3 +111,16 @@ def test_straight_crossings_and_barrier_through_the_cli(valley, capsys):
     code, so, se = run_cli(["plan", "--sites", sites, "--route", "corridor", "--connectivity",
                             "12", "--output", tmp / "y.gpkg"], capsys)
     assert code == 2 and "connectivity" in se and len(se.strip().splitlines()) == 1
+
+
+def test_scenario_comparison_refuses_routing_settings(valley, capsys):
+    # scenarios share straight-link stages: a route there is refused, never planned straight
+    tmp = valley["tmp"]
+    write_points(tmp / "s.gpkg", valley["xy"], fields={"id": ["S", "E", "W"],
+                                                        "role": ["source", "demand", "demand"]})
+    proj = tmp / "p.toml"
+    proj.write_text(f'[sites]\npath = "{tmp / "s.gpkg"}"\nid_field = "id"\nrole_field = "role"\n'
+                    f'[rasters]\nland_cost = "{valley["land"]}"\n'
+                    '[scenarios.routed]\ncandidates = { route = "corridor" }\n')
+    code, so, se = run_cli(["compare", proj, "--quiet"], capsys)
+    assert code == 2 and "'routed'" in se and "route" in se and "Traceback" not in se

@@ -428,3 +428,15 @@ def finish_layout(lay, routed, plan, *, terrain_surface=None, redesign=None):
         info["routing_saving_pct"] = f"{100.0 * (ref - tot) / ref:.2f}"
     lay.run_info.update(info)
     return lay
+
+
+def refuse_in_scenarios(plan, name):
+    """Scenario runs share straight-link stages; a routing setting there is an error."""
+    used = [k for k in ("barrier", "avoid", "crossing") if plan.get(k)]
+    if plan.get("route", "straight") != "straight":
+        used.insert(0, "route")
+    if plan.get("junctions"):
+        used.append("junctions")
+    if used:
+        raise InputError(f"scenario {name!r}: {', '.join(used)} cannot be used in scenario "
+                         "comparisons yet; plan that scenario with 'mainspan plan' instead")

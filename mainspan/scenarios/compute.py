@@ -248,6 +248,10 @@ def _prepare(project, name, ps, bench, say):
     desc = "" if name == "base" else project.scenarios[name].get("description", "")
     path, read_kw, plan = ps.sites_path, ps.read_kwargs(), ps.plan_kwargs()
     weights = _weights(plan)
+    # --- route14: routes are not shared stages yet: refuse rather than plan straight silently ---
+    from ..pipeline.routing import refuse_in_scenarios
+    refuse_in_scenarios(plan, name)
+    # --- end route14 ---
     sk, sites = bench.get_sites(path, read_kw)
     ck, cands = bench.get_candidates(sk, sites, plan)
     terr = bench.terrain_parts(ck, sites.xy, cands.edges, sites, plan, weights)
