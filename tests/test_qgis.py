@@ -66,8 +66,17 @@ def test_schema_settings_map_to_processing_parameters():
     assert by_name["design.velocity_max_mps"].name == "VELOCITY_MAX_MPS"
     assert by_name["design.velocity_max_mps"].advanced
     # every setting with an option is a parameter, except the three a map layer makes moot
-    shown = {s.name for s in all_settings() if s.on_cli} - set(params.SKIPPED)
+    companions = {s.name for s in all_settings()
+                  if params.layer_parent(s) and s.key.endswith("_layer")}
+    shown = {s.name for s in all_settings() if s.on_cli} - set(params.SKIPPED) - companions
     assert set(by_name) == shown
+    # existing mains (issue 15): a line-layer picker whose fields are picked from it, and
+    # the layer of a multi-layer file chosen by the picker, not typed
+    assert by_name["network.existing"].widget == "vector"
+    fld = by_name["network.existing_diameter_field"]
+    assert (fld.widget, fld.parent) == ("field", "EXISTING")
+    assert "network.existing_layer" in companions
+    assert by_name["network.forced_links_layer"].widget == "vector"
     assert len({sp.name for sp in by_name.values()}) == len(by_name)     # unique names
     # settings other helpers add appear by their declaration alone
     barrier = Setting("route", "barriers", "path", None, "lines no main may cross",

@@ -175,7 +175,7 @@ def _parameter(sp):
     if w == "field":
         kind = (QgsProcessingParameterField.Numeric if sp.numeric_field
                 else QgsProcessingParameterField.Any)
-        return QgsProcessingParameterField(name, label, None, "SITES", kind, optional=opt)
+        return QgsProcessingParameterField(name, label, None, sp.parent, kind, optional=opt)
     if w == "raster":
         return QgsProcessingParameterRasterLayer(name, label, optional=opt)
     if w == "rasters":
@@ -220,6 +220,13 @@ def _layer_path(layer, what):
             and not parts.get("subset") and not layer.subsetString():
         return path, parts.get("layerName") or None
     return None
+
+
+def _companion_layer(s):
+    """``section.<key>_layer``, the setting naming a layer of *s*'s file, if declared."""
+    from ..settings import all_settings
+    name = f"{s.key}_layer"
+    return next((f"{s.section}.{name}" for t in all_settings(s.section) if t.key == name), None)
 
 
 def _only_layer(path, name):
@@ -285,9 +292,13 @@ def schema_values(alg, specs, parameters, context):
         elif w == "vector":
             lyr = alg.parameterAsVectorLayer(parameters, n, context)
             if lyr is not None:
+                s = sp.setting
+                companion = _companion_layer(s)      # e.g. [network] existing_layer
                 got = _layer_path(lyr, n)
-                if got is None or not _only_layer(*got):   # mainspan reads a file's one layer
-                    got = _export_layer(lyr, context, sp.setting.key)
+                if got is not None and got[1] is not None and companion is not None:
+                    layers[companion] = got[1]
+                elif got is None or not _only_layer(*got):   # mainspan reads its one layer
+                    got = _export_layer(lyr, context, s.key)
                 values[n] = got[0]
         elif w == "field":
             f = alg.parameterAsFields(parameters, n, context)

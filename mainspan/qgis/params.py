@@ -59,9 +59,28 @@ BASIC = {"sites.path", "sites.id_field", "sites.role_field", "sites.demand_field
 # per-site fields that hold text (every other sites *_field holds a number)
 _TEXT_FIELDS = {"id_field", "role_field"}
 _VECTOR_WORDS = ("line", "polygon", "vector", "barrier", "crossing", "existing", "corridor",
-                 "mains")
+                 "mains", "layer")
 OUTPUT_FILTERS = {"gpkg": "GeoPackage (*.gpkg)", "html": "HTML (*.html)", "dxf": "DXF (*.dxf)",
                    "xml": "LandXML (*.xml)", "csv": "CSV (*.csv)"}
+
+
+def _vector_keys(section) -> set:
+    """Keys of the vector-layer path settings of *section*."""
+    from ..settings import all_settings
+    return {s.key for s in all_settings(section) if s.kind == "path" and s.section != "output"
+            and s.section != "sites" and _has_word(s, _VECTOR_WORDS)
+            and not s.key.endswith("_raster")}
+
+
+def layer_parent(s):
+    """For ``<key>_layer`` / ``<key>_..._field`` text settings beside a vector-layer setting
+    ``<key>`` of the same section: that setting's key, else None."""
+    if s.kind != "text" or s.section == "sites":
+        return None
+    for k in sorted(_vector_keys(s.section), key=len, reverse=True):
+        if s.key == f"{k}_layer" or (s.key.startswith(f"{k}_") and s.key.endswith("_field")):
+            return k
+    return None
 
 
 @dataclass(frozen=True)
@@ -96,6 +115,7 @@ class ParamSpec:
     advanced: bool = False
     numeric_field: bool = False
     extension: str = ""
+    parent: str = "SITES"
 
     @property
     def default(self):
@@ -122,10 +142,18 @@ def spec_of(s) -> ParamSpec | None:
     """The processing parameter showing setting *s*; None if it is not shown."""
     if not s.on_cli or s.name in SKIPPED:
         return None
-    widget, numeric, ext = None, False, ""
+    widget, numeric, ext, parent = None, False, "", "SITES"
+    owner = layer_parent(s)
+    if owner is not None and s.key == f"{owner}_layer":
+        return None             # the layer picker of <owner> chooses the layer
+    if owner is not None:       # a field of that layer (any type: sizes, materials, ...)
+        from ..settings import setting
+        widget, parent = "field", param_name(setting(s.section, owner))
     named_raster = s.key.endswith("_raster") or (s.metavar or "").upper() in ("DEM", "RASTER")
     raster_path = named_raster or (s.section == "rasters" and not _has_word(s, _VECTOR_WORDS))
-    if s.section == "sites" and s.kind == "path":
+    if widget == "field":
+        pass
+    elif s.section == "sites" and s.kind == "path":
         widget = "point_layer"
     elif s.section == "sites" and s.key.endswith("_field"):
         widget, numeric = "field", s.key not in _TEXT_FIELDS
@@ -151,7 +179,8 @@ def spec_of(s) -> ParamSpec | None:
     label = _label(s)
     required = s.name in ("sites.path", "output.gpkg")
     return ParamSpec(param_name(s), s, widget, label + unit, optional=not required,
-                     advanced=s.name not in BASIC, numeric_field=numeric, extension=ext)
+                     advanced=s.name not in BASIC, numeric_field=numeric, extension=ext,
+                     parent=parent)
 
 
 def _label(s) -> str:
