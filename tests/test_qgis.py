@@ -38,7 +38,7 @@ QGIS_PYTHON = os.environ.get("MAINSPAN_QGIS_PYTHON", "/usr/bin/python3")
 CAUTION_WORDS = ("licensed engineer", "local codes", "locate existing utilities")
 
 # processing parameter type of each widget (QgsProcessingParameter*.type())
-QGIS_TYPE = {"point_layer": "vector", "vector": "vector", "field": "field", "raster": "raster",
+QGIS_TYPE = {"point_layer": "vector", "vector": "vector", "vectors": "multilayer", "field": "field", "raster": "raster",
              "rasters": "multilayer", "crs": "crs", "enum": "enum", "number": "number",
              "integer": "number", "bool": "boolean", "file": "file",
              "destination": "fileDestination", "text": "string"}
@@ -77,6 +77,11 @@ def test_schema_settings_map_to_processing_parameters():
     assert (fld.widget, fld.parent) == ("field", "EXISTING")
     assert "network.existing_layer" in companions
     assert by_name["network.forced_links_layer"].widget == "vector"
+    # barriers (issue 14): several vector layers, each handed on as PATH or PATH|layer
+    assert by_name["rasters.barrier"].widget == "vectors"
+    sec, _ = params.settings_from_values(list(by_name.values()),
+                                         {"BARRIER": ["/d/ponds.gpkg|ponds"]})
+    assert sec["rasters"]["barrier"] == ["/d/ponds.gpkg|ponds"]
     assert len({sp.name for sp in by_name.values()}) == len(by_name)     # unique names
     # settings other helpers add appear by their declaration alone
     barrier = Setting("route", "barriers", "path", None, "lines no main may cross",

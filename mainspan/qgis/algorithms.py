@@ -184,6 +184,10 @@ def _parameter(sp):
     if w == "vector":
         return QgsProcessingParameterVectorLayer(name, label, [QgsProcessing.TypeVectorAnyGeometry],
                                                  optional=opt)
+    if w == "vectors":
+        return QgsProcessingParameterMultipleLayers(name, label,
+                                                    QgsProcessing.TypeVectorAnyGeometry,
+                                                    optional=opt)
     if w == "crs":
         return QgsProcessingParameterCrs(name, label, None, optional=opt)
     if w == "enum":
@@ -227,6 +231,24 @@ def _companion_layer(s):
     from ..settings import all_settings
     name = f"{s.key}_layer"
     return next((f"{s.section}.{name}" for t in all_settings(s.section) if t.key == name), None)
+
+
+def _project_layers_to_paths(text, context):
+    """``NAME=PRICE, ...`` where NAME may be a vector layer of the project: its file path."""
+    project = context.project()
+    out = []
+    for item in re.split(r"[,;\n]", text or ""):
+        name, sep, price = item.strip().rpartition("=")
+        if not sep:
+            out.append(item.strip())
+            continue
+        found = project.mapLayersByName(name.strip()) if project is not None else []
+        if found and found[0].type() == 0:          # QgsMapLayerType.VectorLayer
+            got = _layer_path(found[0], name) or _export_layer(found[0], context,
+                                                               re.sub(r"\W", "_", name))
+            name = got[0] if got[1] is None else f"{got[0]}|{got[1]}"
+        out.append(f"{name.strip()}={price.strip()}")
+    return ", ".join(x for x in out if x)
 
 
 def _only_layer(path, name):
@@ -300,6 +322,15 @@ def schema_values(alg, specs, parameters, context):
                 elif got is None or not _only_layer(*got):   # mainspan reads its one layer
                     got = _export_layer(lyr, context, s.key)
                 values[n] = got[0]
+        elif w == "vectors":       # each as PATH or PATH|layer (mainspan.ground.vectors)
+            paths = []
+            for lyr in alg.parameterAsLayerList(parameters, n, context):
+                got = _layer_path(lyr, n) or _export_layer(lyr, context, sp.setting.key)
+                paths.append(got[0] if got[1] is None else f"{got[0]}|{got[1]}")
+            values[n] = paths or None
+        elif w == "text" and "LAYER=" in (sp.setting.metavar or "").upper():
+            values[n] = _project_layers_to_paths(alg.parameterAsString(parameters, n, context),
+                                                 context)
         elif w == "field":
             f = alg.parameterAsFields(parameters, n, context)
             values[n] = f[0] if f else None

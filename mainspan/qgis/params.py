@@ -163,6 +163,8 @@ def spec_of(s) -> ParamSpec | None:
         widget = "raster"
     elif s.kind == "table" and s.repeat and "RASTER" in (s.metavar or "").upper():
         widget = "rasters"
+    elif s.kind == "list" and s.repeat and (s.metavar or "").upper() == "LAYER":
+        widget = "vectors"      # e.g. --barrier LAYER (repeatable): several vector layers
     elif s.kind == "path" and _has_word(s, _VECTOR_WORDS):
         widget = "vector"
     elif s.kind == "path":
@@ -246,7 +248,9 @@ def settings_from_values(specs, values: dict, *, layers=None) -> tuple:
         if v is None or (isinstance(v, str) and not v.strip()) or v == []:
             continue
         where = f"parameter {sp.name}"
-        if sp.widget in ("text",) and s.kind in ("list", "table"):
+        if sp.widget == "vectors":
+            v = list(v)
+        elif sp.widget in ("text",) and s.kind in ("list", "table"):
             v = parse_items(s, _items(v), where)
         elif sp.widget == "text" and s.kind == "value":
             if s.default is not None and str(v).strip() == _format_value(s.default):
@@ -260,7 +264,7 @@ def settings_from_values(specs, values: dict, *, layers=None) -> tuple:
             v = int(v)
         elif sp.widget == "bool":
             v = bool(v)
-        if sp.widget not in ("point_layer", "rasters") and s.default is not None \
+        if sp.widget not in ("point_layer", "rasters", "vectors") and s.default is not None \
                 and _equal(v, s.default):
             continue            # the default: as if the option were left off
         sections.setdefault(s.section, {})[s.key] = v
