@@ -124,3 +124,19 @@ def test_scenario_comparison_refuses_routing_settings(valley, capsys):
                     '[scenarios.routed]\ncandidates = { route = "corridor" }\n')
     code, so, se = run_cli(["compare", proj, "--quiet"], capsys)
     assert code == 2 and "'routed'" in se and "route" in se and "Traceback" not in se
+
+
+def test_corridor_with_terrain_profiles_follow_the_routes(valley):
+    r, c = np.mgrid[0:41, 0:41]
+    dem = _raster(valley["tmp"] / "dem.tif", 100.0 + 0.2 * r + 0.1 * c)
+    lay = ms.plan_layout(valley["sites"], land_cost=valley["land"], terrain=dem,
+                         route="corridor", connectivity=16, system="pressure")
+    p = lay.profiles
+    assert len(p.offsets) == lay.n_links + 1
+    for i in range(lay.n_links):
+        st, g = p.of(i)
+        # the profile runs the routed polyline's whole length, stations rising
+        assert st[0] == 0.0 and st[-1] == pytest.approx(lay.links["length_m"][i], rel=1e-9)
+        assert (np.diff(st) >= 0).all() and np.isfinite(g).all()
+    assert lay.links["surface_length_m"].sum() >= lay.links["length_m"].sum()
+    assert "diameter_mm" in lay.links and lay.run_info["system"] == "pressure"
