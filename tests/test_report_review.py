@@ -107,7 +107,7 @@ def test_pressure_section_draws_pipe_and_grade_line():
     rows = {name: vals for name, _, vals in section.band_rows(d)}
     hl = np.asarray(lay.links["headloss_m"], float)[d["links"]]
     ln = np.asarray(lay.links["length_m"], float)[d["links"]]
-    assert rows["friction grade (m/km)"] == [f"{v:.1f}" for v in 1000 * hl / ln]
+    assert rows["head loss (m/km)"] == [f"{v:.1f}" for v in 1000 * hl / ln]
     assert rows["grade level (m)"][0] == "240.00"
     # pipe invert: ground less the trench depth plus bedding (0.1 m default)
     pipe = [ln_ for ln_ in fig.axes[0].get_lines() if ln_.get_label() == "pipe invert"][0]

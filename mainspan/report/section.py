@@ -12,7 +12,7 @@ invert level (m)          gravity: pipe invert at the node (outgoing pipe); pres
   or grade level (m)      the hydraulic grade line at the node
 depth (m)                 gravity: ground − invert at the node; pressure: trench
                           depth of each link
-grade                     gravity: pipe slope in %; pressure: friction gradient m/km
+grade                     gravity: pipe slope in %; pressure: head loss per km (m/km)
 size                      pipe size of each link
 length (m)                plan length of each link
 ========================  =========================================================
@@ -227,7 +227,7 @@ def band_rows(d):
         rows.append(("trench depth (m)", "link", [f2(v) for v in d["depth_link"]]))
     if d["grade"] is not None:
         fmt = "{:.2f}" if d["grade_unit"] == "%" else "{:.1f}"
-        label = "grade (%)" if d["grade_unit"] == "%" else "friction grade (m/km)"
+        label = "grade (%)" if d["grade_unit"] == "%" else "head loss (m/km)"
         rows.append((label, "link", [fmt.format(v) if np.isfinite(v) else ""
                                      for v in d["grade"]]))
     if any(d["size"]):

@@ -228,6 +228,9 @@ def write_layers(path, layers: dict, *, overwrite=False):
             existing = list_layers(target)
             ours = set(mainspan_layers(target))
             drop = (ours | set(layers)) & set(existing) if overwrite else set()
+            from .styles import only_our_styles      # hand16: our styles go with our layers
+            if overwrite and "layer_styles" in existing and only_our_styles(target):
+                drop.add("layer_styles")
             keep = [n for n in existing if n not in drop]
             manifest = [n for n in keep if n in ours and n != MANIFEST]
             prev_ids = layer_run_ids(target)

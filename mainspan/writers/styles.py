@@ -23,7 +23,7 @@ from html import escape
 
 import numpy as np
 
-__all__ = ["write_styles", "layer_qml", "SIZE_COLOURS", "STYLE_NAME"]
+__all__ = ["write_styles", "layer_qml", "only_our_styles", "SIZE_COLOURS", "STYLE_NAME"]
 
 STYLE_NAME = "mainspan"
 #: Our colours for pipe-size classes, smallest first (the report's map uses the same).
@@ -152,6 +152,23 @@ def layer_qml(name, df):
                               lambda n, s=shape, f=fill: _marker(n, s, f, 2.2)))
             return _rules_qml(rules, 0, f"replace({_quote(kcol)}, '_', ' ')", 0)
     return None
+
+
+def only_our_styles(path) -> bool:
+    """Whether every row of the GeoPackage's ``layer_styles`` is one mainspan wrote (so the
+    table may go when mainspan's layers are replaced, and re-runs give the same bytes)."""
+    try:
+        con = sqlite3.connect(f"file:{path}?mode=ro", uri=True)
+    except sqlite3.Error:
+        return False
+    try:
+        row = con.execute("SELECT count(*) FROM layer_styles WHERE styleName <> ?",
+                          (STYLE_NAME,)).fetchone()
+        return bool(row) and row[0] == 0
+    except sqlite3.Error:
+        return False
+    finally:
+        con.close()
 
 
 def write_styles(path, layers: dict):
