@@ -338,8 +338,7 @@ def route_stage(sites, plan, *, weights, root_idx, terrain_surface=None, progres
     ``extend_candidates(cands)`` and ``extend_costs(costs, cands)`` are the
     network stage's additions (existing mains, forced links) to straight links.
     """
-    from ..graph.candidates import build_candidates
-    from ..ground.costs import price_links
+    from .stages import candidates_stage, price_stage
 
     say = progress or (lambda *a: None)
     vectors = vector_stage(sites, plan)
@@ -358,22 +357,21 @@ def route_stage(sites, plan, *, weights, root_idx, terrain_surface=None, progres
         routed["net"] = net
         return sites2, cands, costs, routed
     say("candidates", 0, 1)
-    cands = build_candidates(sites.xy, plan.get("candidates", "delaunay"), k=plan.get("k", 8),
-                             max_link_m=plan.get("max_link_m"),
-                             max_complete_nodes=plan.get("max_complete_nodes", 5000))
+    cands = candidates_stage(sites, {"candidates": plan.get("candidates", "delaunay"),
+                                     "k": plan.get("k", 8), "max_link_m": plan.get("max_link_m"),
+                                     "max_complete_nodes": plan.get("max_complete_nodes", 5000)})
     if extend_candidates is not None:
         cands = extend_candidates(cands)
     say("candidates", 1, 1)
     say("costs", 0, 1)
-    costs = price_links(sites.xy, cands.edges, working_crs=sites.crs, terrain=terrain_surface,
+    costs = price_stage(sites, cands.edges, {k: plan.get(k) for k in (   # pkg9: the stage
+                            "cost_expression", "class_costs", "raster_crs")} | {
+                            "on_nodata": plan.get("on_nodata", "barrier")},
+                        weights=weights, terrain_surface=terrain_surface,
                         land_cost=plan.get("land_cost"),
-                        cost_expression=plan.get("cost_expression"),
-                        class_costs=plan.get("class_costs"), weights=weights,
-                        on_nodata=plan.get("on_nodata", "barrier"),
                         sample_spacing_m=plan.get("sample_spacing_m"),
-                        raster_crs=plan.get("raster_crs"), extra_terms=vectors.terms(),
-                        progress=(lambda d, t: say("costs", d, t)), node_id=sites.node_id,
-                        refuse_negative=True)
+                        extra_terms=vectors.terms(),
+                        progress=(lambda d, t: say("costs", d, t)))
     if extend_costs is not None:
         costs = extend_costs(costs, cands)
     say("costs", 1, 1)

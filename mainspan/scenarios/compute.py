@@ -7,6 +7,7 @@ import os
 import numpy as np
 
 from ..errors import DataFileError, InputError
+from ..pipeline.stages import candidates_stage, price_stage, site_elevations
 from .pricing import _key, combine_costs
 from .results import ScenarioResult, ScenarioSet
 from .tables import _link_table, _regret_matrix, _summary
@@ -43,16 +44,13 @@ class _Workbench:
 
     # candidates ----------------------------------------------------------
     def get_candidates(self, sites_key, sites, plan):
-        from ..graph.candidates import build_candidates
-
-        opts = dict(method=plan.get("candidates", "delaunay"), k=plan.get("k", 8),
-                    max_link_m=plan.get("max_link_m"),
-                    max_complete_nodes=plan.get("max_complete_nodes", 5000))
-        k = _key(sites_key, opts)
+        opts = {n: plan[n] for n in ("candidates", "k", "max_link_m", "max_complete_nodes")}
+        k = _key(sites_key, dict(method=opts["candidates"], k=opts["k"],
+                                 max_link_m=opts["max_link_m"],
+                                 max_complete_nodes=opts["max_complete_nodes"]))
         if k not in self.cands:
             self.say("candidates", 0, 1)
-            method = opts.pop("method")
-            self.cands[k] = build_candidates(sites.xy, method, **opts)
+            self.cands[k] = candidates_stage(sites, opts)
             self.work["candidate_builds"] += 1
         return k, self.cands[k]
 
@@ -69,7 +67,6 @@ class _Workbench:
 
     def terrain_parts(self, edge_key, xy, edges, sites, plan, weights):
         """Terrain components of *edges* (priced once per terrain setting)."""
-        from ..execution.costing import price_links     # dask18: tile-aligned chunks
         from ..ground.costs import CostWeights
 
         terrain = plan.get("terrain")
@@ -85,16 +82,16 @@ class _Workbench:
                 surf = self.surface(terrain, crs=sites.crs, raster_crs=opts["raster_crs"],
                                     name="terrain")
                 self.work["terrain_pricings"] += 1
-            self.terrain[k] = price_links(
-                xy, edges, engine=self.engine, working_crs=sites.crs, terrain=surf,
+            self.terrain[k] = price_stage(     # dask18: tile-aligned chunks on the engine
+                sites, edges, {**_NO_LAND, "on_nodata": opts["on_nodata"],
+                               "raster_crs": opts["raster_crs"]},
                 weights=CostWeights(length=0.0, land=0.0, steep_slope_pct=opts["steep"]),
-                on_nodata=opts["on_nodata"], sample_spacing_m=opts["spacing"],
-                raster_crs=opts["raster_crs"])
+                terrain_surface=surf, sample_spacing_m=opts["spacing"], refuse_negative=False,
+                engine=self.engine)
         return self.terrain[k]
 
     def land_parts(self, edge_key, xy, edges, sites, plan):
         """Land-cost components of *edges* (priced once per land-cost setting)."""
-        from ..execution.costing import price_links     # dask18: tile-aligned chunks
         from ..ground.costs import CostWeights
 
         land = plan.get("land_cost")
@@ -114,11 +111,10 @@ class _Workbench:
                                           name=n) for n, p in items}
                 src = opened if named else opened["land_cost"]
                 self.work["land_pricings"] += 1
-            self.land[k] = price_links(
-                xy, edges, engine=self.engine, working_crs=sites.crs, land_cost=src, cost_expression=opts["expr"],
-                class_costs=opts["classes"], weights=CostWeights(length=0.0, land=1.0),
-                on_nodata=opts["on_nodata"], raster_crs=opts["raster_crs"],
-                node_id=sites.node_id, refuse_negative=True)
+            self.land[k] = price_stage(        # dask18: tile-aligned chunks on the engine
+                sites, edges, {"cost_expression": opts["expr"], "class_costs": opts["classes"],
+                               "on_nodata": opts["on_nodata"], "raster_crs": opts["raster_crs"]},
+                weights=CostWeights(length=0.0, land=1.0), land_cost=src, engine=self.engine)
         return self.land[k]
 
     def elevations(self, sites_key, sites, plan):
@@ -134,12 +130,14 @@ class _Workbench:
 
 
 # ------------------------------------------------------------------------------ layouts
+#: The land options switched off, to price the terrain components alone.
+_NO_LAND = {"cost_expression": None, "class_costs": None}
+
+
 def _node_elevations(bench, sites_key, sites, plan):
     """Node elevations as plan_layout sets them (DEM, or the sites' Z when asked)."""
-    from ..pipeline.layout import site_elevations
-
-    dem = bench.elevations(sites_key, sites, plan) if plan.get("terrain") is not None else None
-    return site_elevations(sites, dem, use_site_z=plan.get("use_site_z", False))
+    dem = bench.elevations(sites_key, sites, plan) if plan["terrain"] is not None else None
+    return site_elevations(sites, dem, use_site_z=plan["use_site_z"])
 
 
 
@@ -246,7 +244,7 @@ def _prepare(project, name, ps, bench, say):
     """The shared stages of scenario *name* (sites, candidates, link costs, elevations)."""
     settings = ps.sections
     desc = "" if name == "base" else project.scenarios[name].get("description", "")
-    path, read_kw, plan = ps.sites_path, ps.read_kwargs(), ps.plan_kwargs()
+    path, read_kw, plan = ps.sites_path, ps.read_kwargs(), ps.resolved()
     weights = _weights(plan)
     # --- route14: routes are not shared stages yet: refuse rather than plan straight silently ---
     from ..pipeline.routing import refuse_in_scenarios

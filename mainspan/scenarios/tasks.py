@@ -13,32 +13,25 @@ import numpy as np
 
 from ..errors import DataFileError, InputError
 from ..execution.worker import resolve_surface
+from ..pipeline.assemble import assemble_layout, plan_inputs
+from ..pipeline.stages import cost_weights, grow_tree, root_stage
 from .pricing import combine_costs
 
 __all__ = ["tree_task", "stability_task", "stability_rng"]
 
 
 def _weights(plan):
-    from ..ground.costs import OPTION_NAMES, CostWeights
-
-    w = plan.get("weights")
-    w = CostWeights() if w is None else (w if isinstance(w, CostWeights) else CostWeights(**w))
-    if plan.get("terrain") is None and (w.climb or w.descent or w.steep_per_m):
-        opt = next(OPTION_NAMES[k] for k in ("climb", "descent", "steep_per_m") if getattr(w, k))
-        raise InputError(f"{opt} prices the terrain but no terrain raster was given; "
-                         "pass terrain= (--terrain)")
-    return w
+    """The cost weights of a checked plan (the schema refused terrain weights without terrain)."""
+    return cost_weights(plan["weights"])
 
 
 def _grow(sites, edges, costs, elev, root_idx, plan, *, certify=True, node_order=None,
           terrain_surface=None):
     """Tree over the passable candidates: Prim (+ certificate) or the gravity arborescence."""
-    from ..pipeline.layout import grow_tree
-
-    return grow_tree(sites, edges, costs, elev, root_idx, layout=plan.get("layout", "tree"),
-                     allow_forest=plan.get("allow_forest", False), design=plan.get("design"),
+    return grow_tree(sites, edges, costs, elev, root_idx, layout=plan["layout"],
+                     allow_forest=plan["allow_forest"], design=plan["design"],
                      certify=certify, node_order=node_order, terrain_surface=terrain_surface,
-                     sample_spacing_m=plan.get("sample_spacing_m"), system=plan.get("system"))
+                     sample_spacing_m=plan["sample_spacing_m"], system=plan["system"])
 
 
 def _tree_links(tree):
@@ -51,32 +44,22 @@ def _tree_links(tree):
 def _assemble(surf, sites, cands, costs, elev, plan, *, name, description):
     """A Layout from shared stages, assembled exactly as :func:`plan_layout` does.
 
-    *surf* is the opened terrain Surface (None without terrain).
+    *surf* is the opened terrain Surface (None without terrain); *plan* the
+    checked settings (:meth:`mainspan.settings.PlanSettings.resolved`).
     """
-    from ..pipeline.layout import assemble_layout
     from ..settings import run_info_params
 
-    system, layout_kind = plan.get("system"), plan.get("layout", "tree")
-    from ..pipeline.layout import LAYOUTS
-    if layout_kind not in LAYOUTS:
-        raise InputError(f"[tree] layout: must be one of {', '.join(LAYOUTS)}, "
-                         f"got {layout_kind!r}")
-    if system not in (None, "pressure", "gravity"):
-        raise InputError(f"[design] system: must be 'pressure' or 'gravity', got {system!r}")
-    roots = plan.get("roots")
-    root_idx = sites.index_of(roots) if roots else sites.default_roots()
-    terrain = plan.get("terrain")
+    system = plan["system"]
+    root_idx = root_stage(sites, plan["roots"])
     tree, cert, directed = _grow(sites, cands.edges, costs, elev, root_idx, plan,
                                  node_order=cands.node_order, terrain_surface=surf)
-    land = plan.get("land_cost")
-    land = land if isinstance(land, dict) else ({} if land is None else {"land_cost": land})
     params = {"scenario": name, "scenario_description": description,
               **run_info_params({**plan, "weights": _weights(plan)},
                                 candidates_label=cands.method)}
     lay = assemble_layout(sites, cands, costs, elev, tree, cert, directed,
-                          terrain_surface=surf, sample_spacing_m=plan.get("sample_spacing_m"),
-                          system=system, design=plan.get("design"), params=params,
-                          inputs=[("sites", sites.path), ("terrain", terrain), *land.items()])
+                          terrain_surface=surf, sample_spacing_m=plan["sample_spacing_m"],
+                          system=system, design=plan["design"], params=params,
+                          inputs=plan_inputs(sites, plan))
     return lay, root_idx
 
 

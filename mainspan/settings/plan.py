@@ -138,6 +138,17 @@ class PlanSettings:
         plan.update(self.objects)
         return plan
 
+    def resolved(self) -> dict:
+        """Every :func:`mainspan.plan_layout` keyword, as set or at its schema default.
+
+        What the stage functions of :mod:`mainspan.pipeline.stages` read.
+        """
+        plan = {s.api: s.default for s in _all()
+                if s.api and s.api not in ("weights", "design")}
+        plan.update(weights=None, design=None)
+        plan.update(self.plan_kwargs())
+        return plan
+
 
 def _api_name(section, key):
     for s in _all():
