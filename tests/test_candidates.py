@@ -355,7 +355,7 @@ def test_split_delaunay_only_when_two_cores_are_idle(monkeypatch):
 
 @pytest.mark.parametrize("case", ["uniform", "clustered", "grid", "grid_jittered"])
 def test_split_delaunay_equals_single_run(case, monkeypatch):
-    from mainspan.graph import candidates
+    from mainspan.graph import triangulation
     from mainspan.graph.candidates import _qhull_split, delaunay_links
 
     rng = np.random.default_rng(13)
@@ -373,7 +373,7 @@ def test_split_delaunay_equals_single_run(case, monkeypatch):
     monkeypatch.setattr(candidates, "_idle_cpus", lambda: 2.0)   # as if two cores were free
     one = normalize_edges(delaunay_links(xy, split_min_points=10**12), n)
     two = normalize_edges(delaunay_links(xy, split_min_points=8), n)
-    monkeypatch.setattr(candidates, "_BACKEND", "qhull")
+    monkeypatch.setattr(triangulation, "_BACKEND", "qhull")
     three = normalize_edges(delaunay_links(xy, split_min_points=8), n)
     if case != "grid":
         assert _qhull_split(xy) is not None      # the merge is confirmed on general input
