@@ -68,14 +68,12 @@ from __future__ import annotations
 import math
 import os
 import re
-from dataclasses import dataclass, field, fields
-from typing import Callable
 
-import numba
 import numpy as np
-import pyproj
 
 from ..errors import InputError
+from .cost_data import OPTION_NAMES, CostContext, CostWeights, LinkCosts, _count_reasons  # noqa: F401
+from .cost_terms import land_term, length_term, terrain_term
 from .expression import FUNCTIONS, compile_expression
 from ..plugins import Registry
 from .surfaces import Surface, open_surface, working_crs_of
@@ -91,17 +89,12 @@ __all__ = [
     "sites_outside",
 ]
 
-# command-line spelling of each weight, for messages (the CLI uses the same names)
-OPTION_NAMES = {k: "--" + k.replace("_", "-") for k in
-                ("length", "land", "climb", "descent", "steep_slope_pct", "steep_per_m", "fixed")}
-
 BASE_COMPONENTS = (
     "length_m", "surface_length_m", "land_cost", "climb_m", "descent_m", "max_slope_pct",
     "steep_length_m", "nodata_fraction", "z_from_m", "z_to_m",
 )
 _POLICIES = ("barrier", "skip", "error")
 _NAME = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
-_CHUNK_SAMPLES = 1_000_000
 
 
 def _check_term(name, fn):
@@ -114,326 +107,11 @@ def _check_term(name, fn):
 COST_TERMS = Registry("cost term", "mainspan.cost_terms", option="--cost-term", check=_check_term)
 
 
-@dataclass(frozen=True)
-class CostWeights:
-    """Prices that turn link components into a total.
-
-    Parameters
-    ----------
-    length : float, default=1.0
-        Price per metre of main (surface length).
-    land : float, default=1.0
-        Multiplier on the integrated land cost.
-    climb : float, default=0.0
-        Price per metre climbed (from ``edges[:, 0]`` to ``edges[:, 1]``).
-    descent : float, default=0.0
-        Price per metre descended.
-    steep_slope_pct : float or None, default=None
-        Slope threshold in percent; ``None`` switches the steep term off.
-    steep_per_m : float, default=0.0
-        Price per metre of plan length steeper than ``steep_slope_pct``.
-    fixed : float, default=0.0
-        Price per link.
-
-    Examples
-    --------
-    >>> CostWeights(climb=2.0).climb
-    2.0
-    >>> CostWeights(climb=-1)
-    Traceback (most recent call last):
-    ...
-    mainspan.errors.InputError: --climb (CostWeights.climb) must be a finite number >= 0; got -1
-    """
-
-    length: float = 1.0
-    land: float = 1.0
-    climb: float = 0.0
-    descent: float = 0.0
-    steep_slope_pct: float | None = None
-    steep_per_m: float = 0.0
-    fixed: float = 0.0
-
-    def __post_init__(self):
-        for f in fields(self):
-            v = getattr(self, f.name)
-            if f.name == "steep_slope_pct" and v is None:
-                continue
-            opt = f"{OPTION_NAMES[f.name]} (CostWeights.{f.name})"
-            if isinstance(v, bool) or not isinstance(v, (int, float, np.integer, np.floating)) \
-                    or not math.isfinite(v) or v < 0:
-                raise InputError(f"{opt} must be a finite number >= 0; got {v!r}")
-            object.__setattr__(self, f.name, float(v))
-        if self.steep_per_m > 0 and self.steep_slope_pct is None:
-            raise InputError(f"{OPTION_NAMES['steep_per_m']} is {self.steep_per_m} but no slope "
-                             f"threshold is set; give {OPTION_NAMES['steep_slope_pct']} too")
-
-
-@dataclass
-class LinkCosts:
-    """Cost components and totals of m candidate links (struct of arrays).
-
-    Attributes
-    ----------
-    components : dict of str -> ndarray of float64, shape (m,)
-        ``length_m, surface_length_m, land_cost, climb_m, descent_m,
-        max_slope_pct, steep_length_m, nodata_fraction, z_from_m, z_to_m``,
-        then one ``land_cost_<name>`` per named land-cost raster, then the
-        columns of extra terms.
-    total : ndarray of float64, shape (m,)
-        The price of each link; ``inf`` where impassable.
-    passable : ndarray of bool, shape (m,)
-    n_impassable : int
-    reasons : dict of str -> int
-        Count of impassable links by reason.
-    reason_code : ndarray of int16, shape (m,)
-        Index into ``reason_labels`` per link, -1 where passable.
-    reason_labels : tuple of str
-    """
-
-    components: dict
-    total: np.ndarray
-    passable: np.ndarray
-    n_impassable: int
-    reasons: dict
-    reason_code: np.ndarray = field(repr=False)
-    reason_labels: tuple = ()
-
-    def __len__(self):
-        return int(self.total.shape[0])
-
-    def reason(self, i) -> str:
-        """Why link *i* is impassable ('' if it is passable)."""
-        c = int(self.reason_code[i])
-        return "" if c < 0 else self.reason_labels[c]
-
-    def subset(self, idx) -> "LinkCosts":
-        """The links selected by *idx* (integer indices or a boolean mask), in that order."""
-        idx = np.asarray(idx)
-        comps = {k: v[idx] for k, v in self.components.items()}
-        code = self.reason_code[idx]
-        passable = self.passable[idx]
-        return LinkCosts(comps, self.total[idx], passable, int((~passable).sum()),
-                         _count_reasons(code, self.reason_labels), code, self.reason_labels)
-
-
-def _count_reasons(code, labels):
-    counts = np.bincount(code[code >= 0], minlength=len(labels))
-    return {labels[i]: int(c) for i, c in enumerate(counts) if c}
-
-
-@dataclass
-class CostContext:
-    """What a cost term sees (read-only by convention).
-
-    Attributes: ``xy`` (n, 2), ``edges`` (m, 2), ``p0``/``p1`` (m, 2) link ends,
-    ``length_m`` (m,), ``weights`` (:class:`CostWeights`), ``working_crs``
-    (pyproj CRS), ``terrain`` (:class:`~mainspan.ground.surfaces.Surface` or None),
-    ``land`` (dict name -> Surface; the single unnamed raster is called
-    ``land_cost``), ``named_land`` (bool: names were given), ``class_tables``
-    (dict name -> (codes, costs)), ``expression`` (checked expression or
-    None), ``sample_spacing_m`` (float or None), ``components`` (columns so
-    far) and ``progress`` (``progress(done, total)`` for this term's work).
-    """
-
-    xy: np.ndarray
-    edges: np.ndarray
-    p0: np.ndarray
-    p1: np.ndarray
-    length_m: np.ndarray
-    weights: CostWeights
-    working_crs: pyproj.CRS
-    terrain: Surface | None = None
-    land: dict = field(default_factory=dict)
-    named_land: bool = False
-    class_tables: dict = field(default_factory=dict)
-    expression: object = None
-    sample_spacing_m: float | None = None
-    components: dict = field(default_factory=dict)
-    progress: Callable | None = None
-
-    @property
-    def m(self) -> int:
-        return int(self.edges.shape[0])
-
 
 # --------------------------------------------------------------------------- built-in terms
-
-@numba.njit(cache=True)
-def _profile_stats(offsets, station, z, steep_pct, sel, surf, climb, desc, maxs, steep, nod,
-                   zf, zt):
-    for q in range(sel.shape[0]):
-        i = sel[q]
-        a = offsets[q]
-        b = offsets[q + 1]
-        s_len = 0.0
-        c = 0.0
-        d = 0.0
-        mx = -1.0
-        st = 0.0
-        nd = 0.0
-        for k in range(a, b - 1):
-            ds = station[k + 1] - station[k]
-            z0 = z[k]
-            z1 = z[k + 1]
-            if np.isnan(z0) or np.isnan(z1):
-                nd += ds
-                s_len += ds
-                continue
-            dz = z1 - z0
-            s_len += math.sqrt(ds * ds + dz * dz)
-            if dz > 0:
-                c += dz
-            else:
-                d -= dz
-            if ds > 0:
-                slope = abs(dz) / ds * 100.0
-                if slope > mx:
-                    mx = slope
-                if steep_pct >= 0 and slope > steep_pct:
-                    st += ds
-        surf[i] = s_len
-        climb[i] = c
-        desc[i] = d
-        if mx >= 0:
-            maxs[i] = mx
-        elif nd > 0:
-            maxs[i] = np.nan
-        else:
-            maxs[i] = 0.0
-        steep[i] = st
-        nod[i] = nd
-        zf[i] = z[a]
-        zt[i] = z[b - 1]
-
-
-@COST_TERMS.register("terrain")
-def terrain_term(ctx: CostContext) -> dict:
-    """Ground profile components and the climb / descent / steep prices."""
-    m = ctx.m
-    w = ctx.weights
-    if ctx.terrain is None:
-        nan = np.full(m, np.nan)
-        zero = np.zeros(m)
-        return {"surface_length_m": ctx.length_m.copy(), "climb_m": zero, "descent_m": zero.copy(),
-                "max_slope_pct": zero.copy(), "steep_length_m": zero.copy(), "z_from_m": nan,
-                "z_to_m": nan.copy(), "cost": np.zeros(m)}
-    surf = ctx.terrain
-    spacing = ctx.sample_spacing_m or surf.default_spacing_m()
-    cols = {k: np.zeros(m) for k in ("surface_length_m", "climb_m", "descent_m", "max_slope_pct",
-                                      "steep_length_m", "nodata_m", "z_from_m", "z_to_m")}
-    steep_pct = -1.0 if w.steep_slope_pct is None else float(w.steep_slope_pct)
-    order = surf._link_order(ctx.p0, ctx.p1)
-    per_link = np.ceil(ctx.length_m[order] / spacing) + 2
-    csum = np.cumsum(per_link)
-    start = 0
-    while start < m:
-        base = csum[start - 1] if start else 0.0
-        end = max(start + 1, int(np.searchsorted(csum, base + _CHUNK_SAMPLES, side="right")))
-        sel = order[start:end]
-        off, station, z = surf.profiles(ctx.p0[sel], ctx.p1[sel], spacing_m=spacing)
-        _profile_stats(off, station, z, steep_pct, sel, cols["surface_length_m"], cols["climb_m"],
-                       cols["descent_m"], cols["max_slope_pct"], cols["steep_length_m"],
-                       cols["nodata_m"], cols["z_from_m"], cols["z_to_m"])
-        start = end
-        if ctx.progress is not None:
-            ctx.progress(end, m)
-    surf.release()
-    cost = w.climb * cols["climb_m"] + w.descent * cols["descent_m"]
-    if w.steep_per_m:
-        cost = cost + w.steep_per_m * cols["steep_length_m"]
-    cols["cost"] = cost
-    cols["nodata_source"] = f"terrain raster {surf.path!r}"
-    return cols
-
-
-def _apply_classes(values, table, surf):
-    codes, costs = table
-    out = np.full(values.shape, np.nan)
-    ok = ~np.isnan(values)
-    v = values[ok]
-    j = np.clip(np.searchsorted(codes, v), 0, codes.shape[0] - 1)
-    hit = codes[j] == v
-    if not hit.all():
-        missing = np.unique(v[~hit])
-        shown = ", ".join(f"{c:g}" for c in missing[:20]) + (" ..." if missing.size > 20 else "")
-        priced = ", ".join(f"{c:g}" for c in codes)
-        raise InputError(f"class raster {surf.name!r} ({surf.path}) has code(s) {shown} along the "
-                         f"links that class_costs does not price (priced: {priced}); add them to "
-                         "the class table")
-    out[ok] = costs[j]
-    return out
-
-
-@COST_TERMS.register("land")
-def land_term(ctx: CostContext) -> dict:
-    """Line integral of the land-cost rasters (sum, or a cost expression)."""
-    m = ctx.m
-    land = np.zeros(m)
-    if not ctx.land:
-        return {"land_cost": land, "cost": land.copy()}
-    per = {name: np.zeros(m) for name in ctx.land}
-    nod = np.zeros(m)
-    from .surfaces import _accumulate  # the numba accumulator shared with line_integral
-
-    n_pass = 1 if ctx.expression is not None else len(ctx.land)
-    done = [0]
-
-    def prog(d, t):
-        if ctx.progress is not None:
-            ctx.progress(done[0] + d, n_pass * t)
-
-    if ctx.expression is None:
-        for name, surf in ctx.land.items():
-            scratch = np.zeros(m)
-            outside = np.zeros(m)
-            table = ctx.class_tables.get(name)
-            for oo, rr, cc, ll in surf.iter_crossings(ctx.p0, ctx.p1, outside, progress=prog):
-                vals = surf.gather_cells(rr, cc)
-                if table is not None:
-                    vals = _apply_classes(vals, table, surf)
-                _accumulate(oo, ll, vals, per[name], scratch)
-            surf.release()
-            land += per[name]
-            nod = np.maximum(nod, scratch + outside)
-            done[0] += m
-        sources = ", ".join(f"{s.name!r} ({s.path})" for s in ctx.land.values())
-    else:
-        used = ctx.expression.names_used
-        grid = ctx.land[used[0]] if used else next(iter(ctx.land.values()))
-        outside = np.zeros(m)
-        scratch = np.zeros(m)
-        for oo, rr, cc, ll in grid.iter_crossings(ctx.p0, ctx.p1, outside, progress=prog):
-            env = {}
-            for name, surf in ctx.land.items():
-                vals = surf.gather_cells(rr, cc)
-                if name in ctx.class_tables:
-                    vals = _apply_classes(vals, ctx.class_tables[name], surf)
-                env[name] = vals
-                _accumulate(oo, ll, vals, per[name], np.zeros(m))
-            if used:
-                v = ctx.expression.evaluate(env)
-            else:  # a constant expression: one value everywhere on the grid
-                v = ctx.expression.evaluate({}) * np.ones(ll.shape[0])
-            _accumulate(oo, ll, v, land, scratch)
-        for surf in ctx.land.values():
-            surf.release()
-        nod = scratch + outside
-        sources = f"cost expression {ctx.expression.text!r} over " + ", ".join(
-            f"{ctx.land[n].name!r} ({ctx.land[n].path})" for n in (used or tuple(ctx.land)))
-    out = {"land_cost": land}
-    if ctx.named_land:
-        for name, col in per.items():
-            out[f"land_cost_{name}"] = col
-    out["cost"] = ctx.weights.land * land
-    out["nodata_m"] = nod
-    out["nodata_source"] = f"land-cost raster(s) {sources}"
-    return out
-
-
-@COST_TERMS.register("length")
-def length_term(ctx: CostContext) -> dict:
-    """Price of the pipe itself: ``length`` per metre of surface length."""
-    return {"cost": ctx.weights.length * ctx.components["surface_length_m"]}
+# (mainspan.ground.cost_terms; registered here, in this order)
+for _name, _term in (("terrain", terrain_term), ("land", land_term), ("length", length_term)):
+    COST_TERMS.register(_name, _term)
 
 
 _BUILTIN = ("terrain", "land", "length")
