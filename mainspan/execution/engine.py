@@ -5,7 +5,6 @@ from __future__ import annotations
 import contextlib
 import contextvars
 import os
-import sys
 
 from ..errors import InputError, MainspanError
 
@@ -40,8 +39,8 @@ class Engine:
         """A handle of *obj* to put in task arguments in its place.
 
         A distributed engine sends *obj* to the cluster once (each worker
-        fetches it once, not once per task that uses it) and keeps it there until :meth:`release`; the
-        embedded engine returns *obj* itself.
+        fetches it once, not once per task that uses it) and keeps it there
+        until :meth:`release`; the embedded engine returns *obj* itself.
         """
         return obj
 
@@ -295,7 +294,3 @@ def use(engine):
     finally:
         _CURRENT.reset(token)
 
-
-def _say_engine(engine, quiet):
-    if not quiet and not engine.local:
-        print(f"[mainspan] running on {engine.describe()}", file=sys.stderr, flush=True)
