@@ -44,7 +44,8 @@ def test_no_network_settings_plan_is_unchanged():
     a, b = ms.plan_layout(s), ms.plan_layout(s, tap_fee=0.0)
     np.testing.assert_array_equal(a.link_ends, b.link_ends)
     assert a.run_info["certificate"] == b.run_info["certificate"]
-    assert "existing" in b.links and not b.links["existing"].any()
+    assert a.links.keys() == b.links.keys() and "existing" not in b.links
+    assert b.run_info["network"] == "" and b.run_info["network_result"] == ""
 
 
 def test_forced_and_forbidden_links_end_to_end():

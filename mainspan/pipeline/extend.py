@@ -178,6 +178,9 @@ class NetworkStage:
         """Links columns, run_info entries and existing-pipe checks of a built layout."""
         from ..graph.existing import existing_checks
 
+        if not self.active:         # nothing asked: the layout's columns stay as before
+            lay.run_info.update(self.run_info())
+            return lay
         e = lay.candidates.edges
         eidx = np.asarray(lay.links["candidate_index"], np.int64)
         L = len(eidx)
