@@ -14,7 +14,15 @@ ezdxf = pytest.importorskip("ezdxf")
 pyproj = pytest.importorskip("pyproj")
 
 from mainspan.errors import InputError, OverwriteError  # noqa: E402
-from mainspan.writers.dxf import LAYER_NAME_RE, safe_layer_name, write_dxf  # noqa: E402
+from mainspan.writers.dxf import (  # noqa: E402
+    LAYER_NAME_RE,
+    PROFILE_TOLERANCE_M,
+    SIZE_CLASSES,
+    safe_layer_name,
+    size_class,
+    thin_profile,
+    write_dxf,
+)
 
 
 def _xdata(e):
@@ -66,18 +74,28 @@ def test_round_trip_3d(tmp_path, system):
             np.testing.assert_allclose(v[[0, -1], 2], [lay.links["invert_from_m"][k],
                                                        lay.links["invert_to_m"][k]])
         else:
-            # ground along the profile: same elevations at the profile's interior stations
+            # ground along the profile, thinned: every profile station lies within the tolerance of
+            # the drawn polyline (linear between kept vertices by chainage), the ends exact
             st, gz = lay.profiles.of(k)
-            inner = (st > 1e-6) & (st < lay.links["length_m"][k] - 1e-6)
-            np.testing.assert_allclose(v[1:-1, 2], gz[inner])
+            ch = np.concatenate([[0.0], np.cumsum(np.hypot(*np.diff(v[:, :2], axis=0).T))])
+            assert np.all(np.abs(np.interp(st, ch, v[:, 2]) - gz)[(st > 1e-6) & (st < ch[-1] - 1e-6)]
+                          <= PROFILE_TOLERANCE_M + 1e-9)
             np.testing.assert_allclose(v[[0, -1], 2], [lay.links["z_from_m"][k],
                                                        lay.links["z_to_m"][k]])
         # plan length of the drawn polyline = link length (straight link)
         seg = np.hypot(*np.diff(v[:, :2], axis=0).T).sum()
         assert seg == pytest.approx(lay.links["length_m"][k], rel=1e-9)
     for i, nid in enumerate(ids):
-        p = np.array(points[nid].dxf.location) + [x0, y0, 0]
+        p = np.array(points[nid].dxf.insert) + [x0, y0, 0]
         np.testing.assert_allclose(p, [*lay.node_xy[i], lay.nodes["elevation_m"][i]])
+        att = {a.dxf.tag: a.dxf.text for a in points[nid].attribs}
+        assert att["ID"] == nid and float(att["GROUND_M"]) == pytest.approx(lay.nodes["elevation_m"][i], abs=5e-4)
+        if system == "gravity":
+            assert float(att["INVERT_M"]) == pytest.approx(lay.nodes["invert_m"][i], abs=5e-4)
+            assert float(att["DEPTH_M"]) == pytest.approx(lay.nodes["elevation_m"][i] - lay.nodes["invert_m"][i],
+                                                          abs=1e-3)
+        elif system == "pressure":
+            assert float(att["PRESSURE_M"]) == pytest.approx(lay.nodes["pressure_head_m"][i], abs=5e-4)
     # every layer name passes ezdxf's validator and our stricter portable rule
     from ezdxf.lldxf.validator import is_valid_layer_name
 
@@ -163,3 +181,81 @@ def test_bad_options(tmp_path):
         write_dxf(lay, tmp_path / "e.dxf", polylines="4d")
     with pytest.raises(InputError, match="origin"):
         write_dxf(lay, tmp_path / "e.dxf", origin="somewhere")
+
+
+def _with_structures(system):
+    """The test layout with two access points and two fittings, as the design stage adds them."""
+    lay = make_layout(system)
+    a, b = lay.link_ends[0]
+    mid = (lay.node_xy[a] + lay.node_xy[b]) / 2
+    lay.tables["access_points"] = {"link_id": np.array([1, 1]), "chainage_m": np.array([10.0, 20.0]),
+                                   "x": np.array([mid[0], mid[0] + 5]), "y": np.array([mid[1], mid[1] + 5]),
+                                   "ground_m": np.array([201.25, 202.5]), "invert_m": np.array([198.0, 199.75])}
+    lay.tables["fittings"] = {"type": np.array(["air valve", "washout"], object), "size_mm": np.array([50.0, 80.0]),
+                              "link_id": np.array([1, 2]), "chainage_m": np.array([3.0, 4.0]), "node": np.array([-1, -1]),
+                              "x": np.array([mid[0] - 5, mid[0] - 9]), "y": np.array([mid[1], mid[1]])}
+    return lay
+
+
+@pytest.mark.parametrize("by", ["role", "diameter"])
+def test_structures_are_blocks_with_attributes_and_extents_hold_everything(tmp_path, by):
+    lay = _with_structures("gravity")
+    rep = write_dxf(lay, tmp_path / "s.dxf", by=by, origin="auto")
+    doc = ezdxf.readfile(tmp_path / "s.dxf")
+    assert not doc.audit().has_errors
+    # our blocks, each with the attribute definitions
+    for name in ("MS_NODE", "MS_SOURCE", "MS_ACCESS", "MS_FITTING"):
+        tags = [e.dxf.tag for e in doc.blocks[name] if e.dxftype() == "ATTDEF"]
+        assert tags == ["ID", "TYPE", "SIZE_MM", "GROUND_M", "INVERT_M", "PRESSURE_M", "DEPTH_M"]
+    ins = {e.dxf.name: [] for e in doc.modelspace() if e.dxftype() == "INSERT"}
+    for e in doc.modelspace().query("INSERT"):
+        ins[e.dxf.name].append({a.dxf.tag: a.dxf.text for a in e.attribs})
+    assert len(ins["MS_ACCESS"]) == 2 and len(ins["MS_FITTING"]) == 2
+    assert ins["MS_SOURCE"][0]["TYPE"] == "outlet"                       # the root, marked
+    ap = sorted(ins["MS_ACCESS"], key=lambda d: d["ID"])
+    assert [float(d["DEPTH_M"]) for d in ap] == pytest.approx([3.25, 2.75])
+    assert {d["TYPE"] for d in ins["MS_FITTING"]} == {"air valve", "washout"}
+    assert sorted(d["SIZE_MM"] for d in ins["MS_FITTING"]) == ["50", "80"]
+    assert rep["n_structures"] == 4
+    # extents: set, and holding every entity's bounding box (ezdxf.bbox computes it independently)
+    from ezdxf import bbox
+
+    box = bbox.extents(doc.modelspace())
+    lo, hi = np.array(doc.header["$EXTMIN"]), np.array(doc.header["$EXTMAX"])
+    assert np.all(lo[:2] <= np.array(box.extmin)[:2] + 1e-9) and np.all(hi[:2] >= np.array(box.extmax)[:2] - 1e-9)
+    assert np.all(np.abs(lo) < 1e19)
+
+
+def test_size_classes_colour_and_lineweight(tmp_path):
+    lay = make_layout("pressure")
+    rep = write_dxf(lay, tmp_path / "w.dxf", by="diameter")
+    doc = ezdxf.readfile(tmp_path / "w.dxf")
+    weights = {}
+    for layer in doc.layers:
+        if layer.dxf.name.startswith("MAIN_"):
+            dn = int(layer.dxf.name.rsplit("DN", 1)[1])
+            c = SIZE_CLASSES[int(size_class([dn])[0])]
+            assert layer.dxf.lineweight == c[1] and layer.rgb == c[2]
+            weights[dn] = layer.dxf.lineweight
+    assert weights[160] > weights[110]                       # larger bore, heavier line
+    # by role: each link carries its class
+    write_dxf(lay, tmp_path / "r.dxf")
+    doc = ezdxf.readfile(tmp_path / "r.dxf")
+    for e in doc.modelspace().query("POLYLINE"):
+        k = int(dict(v.split("=", 1) for _, v in e.get_xdata("MAINSPAN"))["link_id"]) - 1
+        c = SIZE_CLASSES[int(size_class([lay.links["nominal_mm"][k]])[0])]
+        assert e.dxf.lineweight == c[1] and e.rgb == c[2]
+    assert rep["layers"]
+
+
+def test_thin_profile_keeps_the_tolerance():
+    # hand-checked: the 0.5 m crest is kept; then the chords 0->2 and 2->4 pass 0.01 m and 0 m from
+    # stations 1 and 3, within 0.05 m, so both are dropped
+    keep = thin_profile(np.array([0, 5]), np.array([0.0, 1, 2, 3, 4]), np.array([0.0, 0.26, 0.5, 0.25, 0.0]))
+    assert keep.tolist() == [True, False, True, False, True]
+    rng = np.random.default_rng(3)
+    st = np.cumsum(rng.uniform(1, 5, 400))
+    z = np.cumsum(rng.normal(0, 0.03, 400))
+    keep = thin_profile(np.array([0, 400]), st, z, 0.05)
+    assert keep[0] and keep[-1] and keep.sum() < 400
+    assert np.max(np.abs(np.interp(st, st[keep], z[keep]) - z)) <= 0.05 + 1e-12

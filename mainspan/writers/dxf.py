@@ -4,13 +4,28 @@ Layer scheme (our own; every name upper-case, only ``A–Z 0–9 _ -``, ≤ 31
 characters so that every CAD reader accepts it):
 
 =====================  ==================================================
-``NODE_<ROLE>``        node markers: a POINT (with elevation) and a circle
+``NODE_<ROLE>``        nodes: an insert of block ``MS_NODE`` (``MS_SOURCE``
+                       at sources and outlets) with attributes
+``STRUCT_ACCESS``      access points (manholes): block ``MS_ACCESS``
+``STRUCT_FITTING``     fittings (valves, washouts, thrust blocks ...):
+                       block ``MS_FITTING``
 ``MAIN_<SYSTEM>``      links, ``by="role"``: ``MAIN_PRESSURE``,
                        ``MAIN_GRAVITY`` or ``MAIN_PLANNED`` (not sized)
 ``MAIN_<MAT>_DN<mm>``  links, ``by="diameter"``: one layer per pipe size
 ``LABEL_NODE``         node ids
 ``LABEL_LINK``         link id, size, length and slope along each link
 =====================  ==================================================
+
+Structures carry the attributes ``ID`` (visible), ``TYPE``, ``SIZE_MM``,
+``GROUND_M``, ``INVERT_M``, ``PRESSURE_M`` and ``DEPTH_M`` (hidden; blank
+where they do not apply).  Blocks are drawn one unit across and inserted at
+the text height, so symbols scale with the labels.
+
+Size classes (our own scheme): nominal bore up to 63, 110, 160, 250, 400 mm
+and above, drawn with lineweights 0.18, 0.25, 0.35, 0.50, 0.70 and 1.00 mm
+and a colour ramp from pale teal to deep indigo (true colour, with the
+nearest index colour for older readers).  With ``by="diameter"`` the size
+layers carry them; with ``by="role"`` each link does.
 
 Any name that had to be changed to fit the rules is listed under
 ``"renamed"`` in the returned dict.  Links are 3D polylines: for a gravity
@@ -25,8 +40,15 @@ recorded in the drawing header (custom properties ``MAINSPAN_ORIGIN_X_M`` /
 ``MAINSPAN_ORIGIN_Y_M``) and in the returned dict: add it back to get
 working-CRS coordinates.
 
-The output is reproducible: ezdxf's fixed-metadata mode is used while saving
-so timestamps and GUIDs do not change between runs.
+Writing is streamed: ezdxf builds the small part of the drawing (header,
+layers, blocks, objects) in its fixed-metadata mode, and the entities are
+written straight to the file by our own tag writer (handles continue from
+ezdxf's handle seed), so memory and time do not grow with an object per
+entity.  Ground profiles are thinned before drawing: a station is dropped
+when the polyline without it stays within ``PROFILE_TOLERANCE_M`` (0.05 m)
+of the ground vertically (Douglas–Peucker on chainage and level; the link
+ends are always kept).  The output is reproducible: no timestamps or random
+GUIDs; the same layout gives the same bytes.
 """
 
 from __future__ import annotations
@@ -41,12 +63,25 @@ import numpy as np
 from ..errors import DataFileError, InputError
 from .tables import atomic_write, check_target, format_value, link_inverts
 
-__all__ = ["write_dxf", "safe_layer_name", "LAYER_NAME_RE"]
+__all__ = ["write_dxf", "safe_layer_name", "size_class", "thin_profile", "LAYER_NAME_RE",
+           "PROFILE_TOLERANCE_M", "SIZE_CLASSES"]
 
 #: What we accept as a portable layer name.
 LAYER_NAME_RE = re.compile(r"^[A-Z0-9_-]{1,31}$")
 APPID = "MAINSPAN"
 _ROLE_COLORS = {"source": 1, "outlet": 1, "demand": 3, "junction": 8}   # ACI numbers
+#: Vertical tolerance of the drawn ground profiles, metres (see the module notes).
+PROFILE_TOLERANCE_M = 0.05
+#: Size classes: (largest nominal bore in mm, lineweight in 1/100 mm, RGB) -- our own scheme.
+SIZE_CLASSES = (
+    (63.0, 18, (120, 196, 186)),
+    (110.0, 25, (64, 160, 170)),
+    (160.0, 35, (38, 124, 160)),
+    (250.0, 50, (40, 90, 150)),
+    (400.0, 70, (52, 58, 130)),
+    (np.inf, 100, (58, 30, 100)),
+)
+_ATTR_TAGS = ("ID", "TYPE", "SIZE_MM", "GROUND_M", "INVERT_M", "PRESSURE_M", "DEPTH_M")
 
 
 def safe_layer_name(name, *, taken=()):
@@ -164,6 +199,260 @@ def _prj_text(layout):
         return crs.to_wkt()
 
 
+def size_class(nominal_mm):
+    """Index into :data:`SIZE_CLASSES` of each nominal bore (NaN: the smallest class).
+
+    Examples
+    --------
+    >>> size_class([50, 110, 111, 630]).tolist()
+    [0, 1, 2, 5]
+    """
+    d = np.nan_to_num(np.asarray(nominal_mm, float), nan=0.0)
+    return np.searchsorted(np.array([c[0] for c in SIZE_CLASSES]), d, side="left")
+
+
+def _nearest_aci(rgb):
+    from ezdxf.colors import aci2rgb
+
+    best, bd = 7, np.inf
+    for i in range(1, 256):
+        r, g, b = aci2rgb(i)
+        dd = (r - rgb[0]) ** 2 + (g - rgb[1]) ** 2 + (b - rgb[2]) ** 2
+        if dd < bd:
+            best, bd = i, dd
+    return best
+
+
+def _njit(fn):
+    try:
+        import numba
+
+        return numba.njit(cache=True)(fn)
+    except ImportError:                                  # pragma: no cover - numba is a dependency
+        return fn
+
+
+@_njit
+def _thin(offsets, st, z, tol):  # pragma: no cover - compiled
+    keep = np.zeros(st.size, np.bool_)
+    stack = np.empty((max(st.size, 2), 2), np.int64)
+    for k in range(offsets.size - 1):
+        a0, a1 = offsets[k], offsets[k + 1]
+        if a1 - a0 <= 2:
+            for i in range(a0, a1):
+                keep[i] = True
+            continue
+        keep[a0] = True
+        keep[a1 - 1] = True
+        top = 0
+        stack[0, 0] = a0
+        stack[0, 1] = a1 - 1
+        top = 1
+        while top > 0:
+            top -= 1
+            i, j = stack[top, 0], stack[top, 1]
+            if j - i < 2:
+                continue
+            span = st[j] - st[i]
+            worst, at = -1.0, -1
+            for m in range(i + 1, j):
+                t = (st[m] - st[i]) / span if span > 0 else 0.0
+                d = abs(z[m] - (z[i] + t * (z[j] - z[i])))
+                if d > worst:
+                    worst, at = d, m
+            if worst > tol:
+                keep[at] = True
+                stack[top, 0], stack[top, 1] = i, at
+                stack[top + 1, 0], stack[top + 1, 1] = at, j
+                top += 2
+    return keep
+
+
+def thin_profile(offsets, station_m, level_m, tol_m=PROFILE_TOLERANCE_M):
+    """Vertices to keep of polylines in CSR form so each stays within ``tol_m`` vertically.
+
+    Douglas–Peucker on (chainage, level) per polyline; first and last vertices
+    are always kept.
+
+    Examples
+    --------
+    >>> thin_profile(np.array([0, 4]), np.array([0., 1., 2., 3.]), np.array([0., 0.26, 0.5, 0.])).tolist()
+    [True, False, True, True]
+    """
+    return _thin(np.asarray(offsets, np.int64), np.asarray(station_m, float), np.asarray(level_m, float),
+                 float(tol_m))
+
+
+def _num(v):
+    """A DXF real: shortest round-trip text of a float (``repr``), ``0.0`` for non-finite."""
+    v = float(v)
+    return repr(v) if math.isfinite(v) else "0.0"
+
+
+def _txt(v):
+    return str(v).replace("\r", " ").replace("\n", " ")
+
+
+class _TagWriter:
+    """Our own DXF tag writer for model-space entities (handles from a seed, one owner)."""
+
+    def __init__(self, f, seed, owner):
+        self.f = f
+        self.h = seed
+        self.owner = owner
+        self.buf = []
+
+    def handle(self):
+        h = self.h
+        self.h += 1
+        return f"{h:X}"
+
+    def flush(self):
+        self.f.write("".join(self.buf))
+        self.buf.clear()
+
+    def entity(self, kind, layer, owner=None, style=""):
+        h = self.handle()
+        self.buf.append(f"  0\n{kind}\n  5\n{h}\n330\n{owner or self.owner}\n100\nAcDbEntity\n  8\n{layer}\n{style}")
+        return h
+
+    def xdata(self, pairs):
+        self.buf.append(f"1001\n{APPID}\n" + "".join(f"1000\n{_txt(p)}\n" for p in pairs))
+
+    def seqend(self, owner, layer):
+        self.entity("SEQEND", layer, owner)
+
+    def polyline3d(self, layer, v, style, xd):
+        h = self.entity("POLYLINE", layer, style=style)
+        self.buf.append("100\nAcDb3dPolyline\n 66\n1\n 10\n0.0\n 20\n0.0\n 30\n0.0\n 70\n8\n")
+        self.xdata(xd)
+        for x, y, z in v:
+            self.entity("VERTEX", layer, h, style)
+            self.buf.append(f"100\nAcDbVertex\n100\nAcDb3dPolylineVertex\n 10\n{_num(x)}\n 20\n{_num(y)}\n"
+                            f" 30\n{_num(z)}\n 70\n32\n")
+        self.seqend(h, layer)
+
+    def lwpolyline(self, layer, v, style, xd):
+        self.entity("LWPOLYLINE", layer, style=style)
+        self.buf.append(f"100\nAcDbPolyline\n 90\n{len(v)}\n 70\n0\n" +
+                        "".join(f" 10\n{_num(x)}\n 20\n{_num(y)}\n" for x, y in v))
+        self.xdata(xd)
+
+    def text(self, layer, text, x, y, height, rotation=0.0, centre=False):
+        self.entity("TEXT", layer)
+        out = (f"100\nAcDbText\n 10\n{_num(x)}\n 20\n{_num(y)}\n 30\n0.0\n 40\n{_num(height)}\n"
+               f"  1\n{_txt(text)}\n")
+        if rotation:
+            out += f" 50\n{_num(rotation)}\n"
+        if centre:   # bottom centre: horizontal 1, vertical 1, at the alignment point
+            out += f" 72\n1\n 11\n{_num(x)}\n 21\n{_num(y)}\n 31\n0.0\n100\nAcDbText\n 73\n1\n"
+        else:
+            out += "100\nAcDbText\n"
+        self.buf.append(out)
+
+    def insert(self, layer, block, x, y, z, scale, attribs, xd):
+        h = self.entity("INSERT", layer)
+        self.buf.append(f"100\nAcDbBlockReference\n 66\n1\n  2\n{block}\n 10\n{_num(x)}\n 20\n{_num(y)}\n"
+                        f" 30\n{_num(z)}\n 41\n{_num(scale)}\n 42\n{_num(scale)}\n 43\n{_num(scale)}\n")
+        self.xdata(xd)
+        for j, (tag, value) in enumerate(attribs):
+            # the id shows beside the symbol; the other values are hidden attributes at the same place
+            ax, ay = x + 0.9 * scale, y + 0.9 * scale
+            self.entity("ATTRIB", layer, h)
+            self.buf.append(f"100\nAcDbText\n 10\n{_num(ax)}\n 20\n{_num(ay)}\n 30\n{_num(z)}\n"
+                            f" 40\n{_num(scale)}\n  1\n{_txt(value)}\n100\nAcDbAttribute\n280\n0\n"
+                            f"  2\n{tag}\n 70\n{0 if j == 0 else 1}\n")
+        self.seqend(h, layer)
+
+
+def _fmt_level(v, nd=3):
+    v = float(v)
+    return f"{v:.{nd}f}" if math.isfinite(v) else ""
+
+
+def _skeleton(layer_props, h, header_vars, custom, ext):
+    """The drawing without model-space entities, by ezdxf (fixed metadata): text, model-space owner, seed."""
+    import ezdxf
+
+    keep = ezdxf.options.write_fixed_meta_data_for_testing
+    ezdxf.options.write_fixed_meta_data_for_testing = True
+    try:
+        doc = ezdxf.new("R2013", setup=False)
+        doc.header.custom_vars.append("WRITER", "mainspan")   # marks the file as ours (safeio)
+        for k, v in header_vars.items():
+            doc.header[k] = v
+        doc.appids.add(APPID)
+        for k, v in custom:
+            doc.header.custom_vars.append(k, v)
+        for name, (aci, rgb, lw) in layer_props.items():
+            lay = doc.layers.add(name, color=aci)
+            if rgb is not None:
+                lay.rgb = rgb
+            if lw is not None:
+                lay.dxf.lineweight = lw
+        _blocks(doc)
+        if ext is not None:
+            lo, hi = ext
+            doc.header["$EXTMIN"] = (float(lo[0]), float(lo[1]), float(lo[2]))
+            doc.header["$EXTMAX"] = (float(hi[0]), float(hi[1]), float(hi[2]))
+            doc.set_modelspace_vport(height=float(max(hi[0] - lo[0], hi[1] - lo[1], 1.0)),
+                                     center=((lo[0] + hi[0]) / 2, (lo[1] + hi[1]) / 2))
+        # ezdxf adds CLASS entries for the entity types in use from a set, whose order follows
+        # Python's per-process hash seed: add them now, sorted, so every run writes the same bytes.
+        doc.classes.add_required_classes(doc.dxfversion)
+        doc.classes.classes = type(doc.classes.classes)(sorted(doc.classes.classes.items()))
+        owner = doc.block_records.get("*Model_Space").dxf.handle
+        buf = io.StringIO()
+        doc.write(buf)
+    finally:
+        ezdxf.options.write_fixed_meta_data_for_testing = keep
+    text = buf.getvalue()
+    if ext is not None:
+        # ezdxf writes its own "unknown" extents (1e20); put the drawing's in their place
+        for var, v in (("$EXTMIN", ext[0]), ("$EXTMAX", ext[1])):
+            text = re.sub(rf"(\n\s*9\n\{var}\n)\s*10\n[^\n]*\n\s*20\n[^\n]*\n\s*30\n[^\n]*\n",
+                          lambda mm, v=v: f"{mm.group(1)} 10\n{_num(v[0])}\n 20\n{_num(v[1])}\n 30\n{_num(v[2])}\n",
+                          text, count=1)
+    m = re.search(r"\$HANDSEED\n\s*5\n([0-9A-Fa-f]+)\n", text)
+    return text, owner, int(m.group(1), 16), m
+
+
+def _blocks(doc):
+    """Our structure symbols, one unit across, each with the same attribute definitions."""
+    shapes = {
+        "MS_NODE": lambda b: b.add_circle((0, 0), 0.5),
+        "MS_SOURCE": lambda b: (b.add_circle((0, 0), 0.5),
+                                b.add_lwpolyline([(0, 0.45), (-0.39, -0.225), (0.39, -0.225)], close=True)),
+        "MS_ACCESS": lambda b: (b.add_circle((0, 0), 0.5), b.add_circle((0, 0), 0.32),
+                                b.add_line((-0.32, 0), (0.32, 0))),
+        "MS_FITTING": lambda b: b.add_lwpolyline([(0, 0.5), (0.5, 0), (0, -0.5), (-0.5, 0)], close=True),
+    }
+    for name, draw in shapes.items():
+        b = doc.blocks.new(name)
+        draw(b)
+        for j, tag in enumerate(_ATTR_TAGS):
+            b.add_attdef(tag, (0.9, 0.9), dxfattribs={"height": 1.0, "flags": 0 if j == 0 else 1})
+
+
+def _stream_write(path, write, *, overwrite, what):
+    """Write through ``write(f)`` into a temporary file beside *path*, then move it into place."""
+    from ..safeio import output_lock, replace_into, resolve_output, temp_beside
+
+    target = resolve_output(path)
+    try:
+        with output_lock(target, what=what, shown=path):
+            check_target(path, overwrite=overwrite, what=what)
+            with temp_beside(target) as tmp:
+                with open(tmp, "w", encoding="utf-8", newline="\n") as f:
+                    write(f)
+                replace_into(tmp, target)
+    except DataFileError:
+        raise
+    except OSError as exc:
+        raise DataFileError(f"cannot write {what} {path!r}: {exc.strerror or exc}; check the folder is "
+                            "writable and has space") from None
+
+
 def write_dxf(layout, path, *, by="role", polylines="3d", text_height_m=None, origin=None,
               overwrite=False):
     """Write the layout as a DXF drawing in metres, with a ``.prj`` beside it.
@@ -191,15 +480,16 @@ def write_dxf(layout, path, *, by="role", polylines="3d", text_height_m=None, or
     dict
         ``path``, ``prj`` (or None when the layout has no CRS), ``origin``
         (x0, y0), ``text_height_m``, ``layers`` (name → entity count),
-        ``renamed`` (wanted name → written name), ``n_links``, ``n_nodes``.
+        ``renamed`` (wanted name → written name), ``n_links``, ``n_nodes``,
+        ``n_structures`` (access points and fittings), ``n_vertices`` (drawn
+        link vertices after thinning) and ``n_stations`` (profile vertices
+        before thinning).
 
     References
     ----------
     Autodesk, *DXF Reference* (AutoCAD 2013): header variables ``$INSUNITS``
     (6 = metres) and ``$MEASUREMENT`` (1 = metric), POLYLINE/LWPOLYLINE, XDATA.
     """
-    import ezdxf
-
     if by not in ("role", "diameter"):
         raise InputError(f"by={by!r}: expected 'role' or 'diameter'")
     if polylines not in ("3d", "2d"):
@@ -239,8 +529,11 @@ def write_dxf(layout, path, *, by="role", polylines="3d", text_height_m=None, or
         layer_of[wanted] = s
         return s
 
+    nom = _col(layout, "nominal_mm")
+    cls = size_class(nom) if nom is not None else None
+    aci_of = [_nearest_aci(c[2]) for c in SIZE_CLASSES]
+    props = {}                                  # written name -> (aci, rgb, lineweight)
     if by == "diameter":
-        nom = _col(layout, "nominal_mm")
         dia = _col(layout, "diameter_mm")
         if nom is None and dia is None:
             raise InputError("by='diameter': the layout has no pipe sizes (nominal_mm/diameter_mm);"
@@ -250,112 +543,187 @@ def write_dxf(layout, path, *, by="role", polylines="3d", text_height_m=None, or
         for i in range(m):
             size = _size_text(layout, i) or "UNSIZED"
             mt = str(mat[i]) if mat is not None and str(mat[i]) not in ("", "nan", "None") else ""
-            link_layer.append(layer("MAIN_" + (f"{mt.upper()}_" if mt else "") + size))
+            nm = layer("MAIN_" + (f"{mt.upper()}_" if mt else "") + size)
+            link_layer.append(nm)
+            if cls is not None and nm not in props:
+                c = SIZE_CLASSES[cls[i]]
+                props[nm] = (aci_of[cls[i]], c[2], c[1])
+        link_style = [""] * m
     else:
         name = {"pressure": "MAIN_PRESSURE", "gravity": "MAIN_GRAVITY"}.get(system, "MAIN_PLANNED")
         link_layer = [layer(name)] * m
+        if cls is not None:        # the size class on each link: index colour, true colour, lineweight
+            style_of = [f" 62\n{aci_of[j]}\n420\n{(c[2][0] << 16) | (c[2][1] << 8) | c[2][2]}\n370\n{c[1]}\n"
+                        for j, c in enumerate(SIZE_CLASSES)]
+            link_style = [style_of[j] for j in cls]
+        else:
+            link_style = [""] * m
     roles = np.asarray(layout.nodes.get("role", np.full(n, "site", object))).astype(str)
     node_layer = [layer("NODE_" + r.upper()) for r in roles]
     lab_node, lab_link = layer("LABEL_NODE"), layer("LABEL_LINK")
-
-    # ---- drawing (ezdxf's fixed-metadata mode: no dates or random GUIDs, same bytes each run)
-    keep = ezdxf.options.write_fixed_meta_data_for_testing
-    ezdxf.options.write_fixed_meta_data_for_testing = True
-    try:
-        doc = ezdxf.new("R2013", setup=False)
-    finally:
-        ezdxf.options.write_fixed_meta_data_for_testing = keep
-    doc.header.custom_vars.append("WRITER", "mainspan")   # marks the file as ours (safeio)
-    doc.header["$INSUNITS"] = 6          # metres
-    doc.header["$MEASUREMENT"] = 1       # metric
-    doc.header["$LUNITS"] = 2            # decimal
-    doc.header["$TEXTSIZE"] = h
-    doc.appids.add(APPID)
-    cv = doc.header.custom_vars
-    cv.append("MAINSPAN_ORIGIN_X_M", format_value(x0, "x_m"))
-    cv.append("MAINSPAN_ORIGIN_Y_M", format_value(y0, "y_m"))
-    cv.append("MAINSPAN_CRS", str(layout.run_info.get("working_crs")
-                                  or (layout.crs.name if layout.crs is not None else "")))
-    cv.append("MAINSPAN_SYSTEM", system or "planned")
-    cv.append("MAINSPAN_VERSION", str(layout.run_info.get("version", "")))
+    ap = layout.tables.get("access_points") or {}
+    fit = layout.tables.get("fittings") or {}
+    n_ap, n_fit = len(ap.get("x", ())), len(fit.get("x", ()))
+    lay_ap = layer("STRUCT_ACCESS") if n_ap else None
+    lay_fit = layer("STRUCT_FITTING") if n_fit else None
     for wanted, s in layer_of.items():
-        if s not in doc.layers:
-            color = 7
-            if wanted.startswith("NODE_"):
-                color = _ROLE_COLORS.get(wanted[5:].lower(), 7)
-            elif wanted.startswith("MAIN_"):
-                color = 5
-            elif wanted.startswith("LABEL_"):
-                color = 2
-            doc.layers.add(s, color=color)
-    msp = doc.modelspace()
-    counts = {}
-    shift = np.array([x0, y0, 0.0])
+        if s in props:
+            continue
+        color = 7
+        if wanted.startswith("NODE_"):
+            color = _ROLE_COLORS.get(wanted[5:].lower(), 7)
+        elif wanted.startswith("MAIN_"):
+            color = 5
+        elif wanted.startswith("LABEL_"):
+            color = 2
+        elif wanted == "STRUCT_ACCESS":
+            color = 30
+        elif wanted == "STRUCT_FITTING":
+            color = 6
+        props[s] = (color, None, None)
 
+    # ---- link vertices: profile stations thinned to the tolerance, in one pass
+    shift = np.array([x0, y0, 0.0])
+    verts, n_stations = [], 0
+    for i in range(m):
+        verts.append(_link_vertices(layout, i, xy, zg, invert) - shift)
+    if invert is None and m:
+        cnt = np.array([len(v) for v in verts])
+        n_stations = int(cnt.sum())
+        off = np.zeros(m + 1, np.int64)
+        np.cumsum(cnt, out=off[1:])
+        allv = np.concatenate(verts) if m else np.zeros((0, 3))
+        chain = np.zeros(len(allv))
+        if len(allv):
+            step = np.hypot(*np.diff(allv[:, :2], axis=0).T)
+            c = np.concatenate([[0.0], np.cumsum(step)])
+            chain = c - np.repeat(c[off[:-1]], cnt)
+        keep = thin_profile(off, chain, allv[:, 2])
+        kept = np.split(allv[keep], np.cumsum(np.bincount(np.repeat(np.arange(m), cnt)[keep], minlength=m))[:-1])
+        verts = kept
+    else:
+        n_stations = int(sum(len(v) for v in verts))
+    n_vertices = int(sum(len(v) for v in verts))
+
+    link_text = [_link_label(layout, i, _size_text(layout, i)) for i in range(m)]
+    # ---- extents: every node, structure and vertex, plus the symbols and labels around them
+    pts = [xy - [x0, y0]] if n else []
+    for t in (ap, fit):
+        if len(t.get("x", ())):
+            pts.append(np.column_stack([np.asarray(t["x"], float), np.asarray(t["y"], float)]) - [x0, y0])
+    ext = None
+    if pts:
+        allp = np.concatenate(pts)
+        zs = [v[:, 2] for v in verts if len(v)]
+        elev = np.asarray(layout.nodes.get("elevation_m", np.full(n, np.nan)), float)
+        zall = np.concatenate(zs + [elev[np.isfinite(elev)]]) if polylines == "3d" else np.zeros(1)
+        zall = zall if zall.size else np.zeros(1)
+        # a margin for symbols and labels: ids are drawn from 0.9 text heights right of their point, and
+        # no character is wider than a text height
+        longest = max([len(str(t)) for t in layout.nodes["node_id"]] + [4]) if n else 4
+        longest = max(longest, max((len(t) for t in link_text), default=0) // 2 + 1)   # centred link labels
+        pad = (2.0 + longest) * h
+        lo = np.r_[allp.min(0) - pad, zall.min()]
+        hi = np.r_[allp.max(0) + pad, zall.max()]
+        ext = (lo, hi)
+
+    header_vars = {"$INSUNITS": 6, "$MEASUREMENT": 1, "$LUNITS": 2, "$TEXTSIZE": h, "$LWDISPLAY": 1}
+    custom = [("MAINSPAN_ORIGIN_X_M", format_value(x0, "x_m")), ("MAINSPAN_ORIGIN_Y_M", format_value(y0, "y_m")),
+              ("MAINSPAN_CRS", str(layout.run_info.get("working_crs")
+                                   or (layout.crs.name if layout.crs is not None else ""))),
+              ("MAINSPAN_SYSTEM", system or "planned"),
+              ("MAINSPAN_VERSION", str(layout.run_info.get("version", ""))),
+              ("MAINSPAN_PROFILE_TOLERANCE_M", format_value(PROFILE_TOLERANCE_M, "tol_m"))]
+    text, owner, seed, seed_match = _skeleton(props, h, header_vars, custom, ext)
+    start = text.index("ENTITIES\n") + len("ENTITIES\n")
+    end = text.index("  0\nENDSEC\n", start)
+    counts = {}
     link_ids = layout.links.get("link_id", np.arange(1, m + 1))
     ids = np.asarray(layout.nodes["node_id"]).astype(str)
-    for i in range(m):
-        v = _link_vertices(layout, i, xy, zg, invert) - shift
-        lay = link_layer[i]
-        if polylines == "3d":
-            e = msp.add_polyline3d([tuple(p) for p in v], dxfattribs={"layer": lay})
-        else:
-            e = msp.add_lwpolyline([tuple(p[:2]) for p in v[[0, -1]]], dxfattribs={"layer": lay})
-        xd = [(1000, f"link_id={link_ids[i]}"),
-              (1000, f"from_node={ids[layout.link_ends[i, 0]]}"),
-              (1000, f"to_node={ids[layout.link_ends[i, 1]]}")]
-        if "pipe" in layout.links:
-            xd.append((1000, f"pipe={layout.links['pipe'][i]}"))
-        e.set_xdata(APPID, xd)
-        counts[lay] = counts.get(lay, 0) + 1
-        # label at mid-link, along the link, kept upright
-        a, b = layout.link_ends[i]
-        d = xy[b] - xy[a]
-        ang = math.degrees(math.atan2(d[1], d[0]))
-        if ang > 90:
-            ang -= 180
-        elif ang <= -90:
-            ang += 180
-        mid = (xy[a] + xy[b]) / 2 - shift[:2]
-        # offset the label off the line by half a text height
-        nrm = np.array([-math.sin(math.radians(ang)), math.cos(math.radians(ang))])
-        t = msp.add_text(_link_label(layout, i, _size_text(layout, i)), height=h, rotation=ang,
-                         dxfattribs={"layer": lab_link})
-        t.set_placement(tuple(mid + nrm * 0.5 * h), align=ezdxf.enums.TextEntityAlignment.BOTTOM_CENTER)
-        counts[lab_link] = counts.get(lab_link, 0) + 1
-
+    pipes = layout.links.get("pipe")
     elev = np.asarray(layout.nodes.get("elevation_m", np.full(n, np.nan)), float)
-    for k in range(n):
-        z = float(elev[k]) if np.isfinite(elev[k]) else 0.0
-        p = (xy[k, 0] - x0, xy[k, 1] - y0, z if polylines == "3d" else 0.0)
-        lay = node_layer[k]
-        e = msp.add_point(p, dxfattribs={"layer": lay})
-        e.set_xdata(APPID, [(1000, f"node_id={ids[k]}"), (1000, f"role={roles[k]}")])
-        msp.add_circle(p, radius=0.6 * h, dxfattribs={"layer": lay})
-        counts[lay] = counts.get(lay, 0) + 2
-        t = msp.add_text(ids[k], height=h, dxfattribs={"layer": lab_node})
-        t.set_placement((p[0] + 0.9 * h, p[1] + 0.9 * h), align=ezdxf.enums.TextEntityAlignment.LEFT)
-        counts[lab_node] = counts.get(lab_node, 0) + 1
+    inv_n = np.asarray(layout.nodes.get("invert_m", np.full(n, np.nan)), float)
+    pres_n = np.asarray(layout.nodes.get("pressure_head_m", np.full(n, np.nan)), float)
 
-    if n:
-        lo = xy.min(0) - [x0, y0] - 5 * h
-        hi = xy.max(0) - [x0, y0] + 5 * h
-        doc.header["$EXTMIN"] = (float(lo[0]), float(lo[1]), 0.0)
-        doc.header["$EXTMAX"] = (float(hi[0]), float(hi[1]), 0.0)
-        doc.set_modelspace_vport(height=float((hi - lo).max()), center=tuple((lo + hi) / 2))
+    def entities(f, w):
+        for i in range(m):
+            v = verts[i]
+            lay = link_layer[i]
+            xd = [f"link_id={link_ids[i]}", f"from_node={ids[layout.link_ends[i, 0]]}",
+                  f"to_node={ids[layout.link_ends[i, 1]]}"]
+            if pipes is not None:
+                xd.append(f"pipe={pipes[i]}")
+            if polylines == "3d":
+                w.polyline3d(lay, v, link_style[i], xd)
+            else:
+                w.lwpolyline(lay, [tuple(p[:2]) for p in v[[0, -1]]], link_style[i], xd)
+            counts[lay] = counts.get(lay, 0) + 1
+            # label at mid-link, along the link, kept upright, half a text height off the line
+            a, b = layout.link_ends[i]
+            d = xy[b] - xy[a]
+            ang = math.degrees(math.atan2(d[1], d[0]))
+            if ang > 90:
+                ang -= 180
+            elif ang <= -90:
+                ang += 180
+            mid = (xy[a] + xy[b]) / 2 - shift[:2]
+            r = math.radians(ang)
+            w.text(lab_link, link_text[i], mid[0] - math.sin(r) * 0.5 * h,
+                   mid[1] + math.cos(r) * 0.5 * h, h, rotation=ang, centre=True)
+            counts[lab_link] = counts.get(lab_link, 0) + 1
+            if len(w.buf) > 4096:
+                w.flush()
+        for k in range(n):
+            z = float(elev[k]) if np.isfinite(elev[k]) else 0.0
+            px, py, pz = xy[k, 0] - x0, xy[k, 1] - y0, (z if polylines == "3d" else 0.0)
+            depth = elev[k] - inv_n[k]
+            attrs = list(zip(_ATTR_TAGS, (ids[k], roles[k], "", _fmt_level(elev[k]), _fmt_level(inv_n[k]),
+                                          _fmt_level(pres_n[k]), _fmt_level(depth))))
+            block = "MS_SOURCE" if roles[k] in ("source", "outlet") else "MS_NODE"
+            w.insert(node_layer[k], block, px, py, pz, h, attrs, [f"node_id={ids[k]}", f"role={roles[k]}"])
+            counts[node_layer[k]] = counts.get(node_layer[k], 0) + 1
+            w.text(lab_node, ids[k], px + 0.9 * h, py + 0.9 * h, h)
+            counts[lab_node] = counts.get(lab_node, 0) + 1
+            if len(w.buf) > 4096:
+                w.flush()
+        for j in range(n_ap):
+            g, iv = float(ap.get("ground_m", [np.nan] * n_ap)[j]), float(ap.get("invert_m", [np.nan] * n_ap)[j])
+            kind = str(ap["kind"][j]) if "kind" in ap else "access point"
+            aid = f"AP{j + 1}"
+            attrs = list(zip(_ATTR_TAGS, (aid, kind, "", _fmt_level(g), _fmt_level(iv), "", _fmt_level(g - iv))))
+            px, py = float(ap["x"][j]) - x0, float(ap["y"][j]) - y0
+            pz = g if (polylines == "3d" and math.isfinite(g)) else 0.0
+            w.insert(lay_ap, "MS_ACCESS", px, py, pz, h, attrs,
+                     [f"access_id={aid}", f"link_id={ap['link_id'][j]}" if "link_id" in ap else "link_id="])
+            counts[lay_ap] = counts.get(lay_ap, 0) + 1
+        for j in range(n_fit):
+            size = float(fit["size_mm"][j]) if "size_mm" in fit else float("nan")
+            fid = f"F{j + 1}"
+            attrs = list(zip(_ATTR_TAGS, (fid, str(fit["type"][j]), f"{size:.0f}" if math.isfinite(size) else "",
+                                          "", "", "", "")))
+            w.insert(lay_fit, "MS_FITTING", float(fit["x"][j]) - x0, float(fit["y"][j]) - y0, 0.0, h, attrs,
+                     [f"fitting_id={fid}", f"type={fit['type'][j]}",
+                      f"link_id={fit['link_id'][j]}" if "link_id" in fit else "link_id="])
+            counts[lay_fit] = counts.get(lay_fit, 0) + 1
+        w.flush()
 
-    # ezdxf adds CLASS entries for the entity types in use from a set, whose order follows
-    # Python's per-process hash seed: add them now, sorted, so every run writes the same bytes.
-    doc.classes.add_required_classes(doc.dxfversion)
-    doc.classes.classes = type(doc.classes.classes)(sorted(doc.classes.classes.items()))
-    ezdxf.options.write_fixed_meta_data_for_testing = True
+    # handles are known before writing (one per entity, vertex, attribute and end marker), so the
+    # header's handle seed is written first and the entities go straight to the file
+    n_link_handles = m * (2 if polylines == "2d" else 0) + (sum(len(v) + 3 for v in verts) if polylines == "3d" else 0)
+    n_handles = n_link_handles + n * (2 + len(_ATTR_TAGS) + 1) + (n_ap + n_fit) * (len(_ATTR_TAGS) + 2)
+
+    def write(f):
+        f.write(text[:seed_match.start(1)])
+        f.write(f"{seed + n_handles:X}")
+        f.write(text[seed_match.end(1):start])
+        w = _TagWriter(f, seed, owner)
+        entities(f, w)
+        if w.h != seed + n_handles:                      # pragma: no cover - a bug in the count above
+            raise RuntimeError(f"DXF writer used {w.h - seed} handles, counted {n_handles}")
+        f.write(text[end:])
+
     try:
-        buf = io.StringIO()
-        doc.write(buf)
-    finally:
-        ezdxf.options.write_fixed_meta_data_for_testing = keep
-    try:
-        atomic_write(path, buf.getvalue(), overwrite=overwrite, what="DXF")
+        _stream_write(path, write, overwrite=overwrite, what="DXF")
         if prj is not None:
             atomic_write(prj_path, prj + "\n", overwrite=overwrite, what="projection file")
     except OSError as exc:
@@ -364,4 +732,5 @@ def write_dxf(layout, path, *, by="role", polylines="3d", text_height_m=None, or
         raise DataFileError(f"cannot write DXF {path!r}: {exc}; check the folder is writable") from None
     return {"path": path, "prj": prj_path if prj is not None else None, "origin": (x0, y0),
             "text_height_m": h, "layers": dict(sorted(counts.items())), "renamed": renamed,
-            "n_links": m, "n_nodes": n}
+            "n_links": m, "n_nodes": n, "n_structures": n_ap + n_fit, "n_vertices": n_vertices,
+            "n_stations": n_stations}
