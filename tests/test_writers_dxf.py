@@ -68,26 +68,26 @@ def test_round_trip_3d(tmp_path, system):
         assert e.dxftype() == "POLYLINE" and e.is_3d_polyline
         v = np.array([tuple(p.dxf.location) for p in e.vertices]) + [x0, y0, 0]
         a, b = lay.link_ends[k]
-        np.testing.assert_allclose(v[0, :2], lay.node_xy[a], atol=1e-9)
-        np.testing.assert_allclose(v[-1, :2], lay.node_xy[b], atol=1e-9)
+        np.testing.assert_allclose(v[0, :2], lay.node_xy[a], atol=5e-5)  # written to 0.1 mm
+        np.testing.assert_allclose(v[-1, :2], lay.node_xy[b], atol=5e-5)
         if system == "gravity":
             np.testing.assert_allclose(v[[0, -1], 2], [lay.links["invert_from_m"][k],
-                                                       lay.links["invert_to_m"][k]])
+                                                       lay.links["invert_to_m"][k]], atol=5e-5)
         else:
             # ground along the profile, thinned: every profile station lies within the tolerance of
             # the drawn polyline (linear between kept vertices by chainage), the ends exact
             st, gz = lay.profiles.of(k)
             ch = np.concatenate([[0.0], np.cumsum(np.hypot(*np.diff(v[:, :2], axis=0).T))])
             assert np.all(np.abs(np.interp(st, ch, v[:, 2]) - gz)[(st > 1e-6) & (st < ch[-1] - 1e-6)]
-                          <= PROFILE_TOLERANCE_M + 1e-9)
+                          <= PROFILE_TOLERANCE_M + 1e-4)
             np.testing.assert_allclose(v[[0, -1], 2], [lay.links["z_from_m"][k],
-                                                       lay.links["z_to_m"][k]])
+                                                       lay.links["z_to_m"][k]], atol=5e-5)
         # plan length of the drawn polyline = link length (straight link)
         seg = np.hypot(*np.diff(v[:, :2], axis=0).T).sum()
-        assert seg == pytest.approx(lay.links["length_m"][k], rel=1e-9)
+        assert seg == pytest.approx(lay.links["length_m"][k], abs=1e-3)
     for i, nid in enumerate(ids):
         p = np.array(points[nid].dxf.insert) + [x0, y0, 0]
-        np.testing.assert_allclose(p, [*lay.node_xy[i], lay.nodes["elevation_m"][i]])
+        np.testing.assert_allclose(p, [*lay.node_xy[i], lay.nodes["elevation_m"][i]], atol=5e-5)
         att = {a.dxf.tag: a.dxf.text for a in points[nid].attribs}
         assert att["ID"] == nid and float(att["GROUND_M"]) == pytest.approx(lay.nodes["elevation_m"][i], abs=5e-4)
         if system == "gravity":

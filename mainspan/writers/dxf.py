@@ -47,7 +47,8 @@ ezdxf's handle seed), so memory and time do not grow with an object per
 entity.  Ground profiles are thinned before drawing: a station is dropped
 when the polyline without it stays within ``PROFILE_TOLERANCE_M`` (0.05 m)
 of the ground vertically (Douglas–Peucker on chainage and level; the link
-ends are always kept).  The output is reproducible: no timestamps or random
+ends are always kept).  Coordinates are written to 0.1 mm (four decimals of a
+metre).  The output is reproducible: no timestamps or random
 GUIDs; the same layout gives the same bytes.
 """
 
@@ -326,42 +327,50 @@ class _TagWriter:
         h = self.entity("POLYLINE", layer, style=style)
         self.buf.append("100\nAcDb3dPolyline\n 66\n1\n 10\n0.0\n 20\n0.0\n 30\n0.0\n 70\n8\n")
         self.xdata(xd)
-        for x, y, z in v:
-            self.entity("VERTEX", layer, h, style)
-            self.buf.append(f"100\nAcDbVertex\n100\nAcDb3dPolylineVertex\n 10\n{_num(x)}\n 20\n{_num(y)}\n"
-                            f" 30\n{_num(z)}\n 70\n32\n")
+        pre = f"330\n{h}\n100\nAcDbEntity\n  8\n{layer}\n{style}100\nAcDbVertex\n100\nAcDb3dPolylineVertex\n"
+        for x, y, z in np.nan_to_num(v).tolist():
+            a = self.h
+            self.h += 1
+            self.buf.append(f"  0\nVERTEX\n  5\n{a:X}\n{pre} 10\n{x:.4f}\n 20\n{y:.4f}\n 30\n{z:.4f}\n 70\n32\n")
         self.seqend(h, layer)
 
     def lwpolyline(self, layer, v, style, xd):
         self.entity("LWPOLYLINE", layer, style=style)
         self.buf.append(f"100\nAcDbPolyline\n 90\n{len(v)}\n 70\n0\n" +
-                        "".join(f" 10\n{_num(x)}\n 20\n{_num(y)}\n" for x, y in v))
+                        "".join(f" 10\n{x:.4f}\n 20\n{y:.4f}\n" for x, y in np.nan_to_num(v).tolist()))
         self.xdata(xd)
 
     def text(self, layer, text, x, y, height, rotation=0.0, centre=False):
         self.entity("TEXT", layer)
-        out = (f"100\nAcDbText\n 10\n{_num(x)}\n 20\n{_num(y)}\n 30\n0.0\n 40\n{_num(height)}\n"
+        out = (f"100\nAcDbText\n 10\n{x:.4f}\n 20\n{y:.4f}\n 30\n0.0\n 40\n{height:.4f}\n"
                f"  1\n{_txt(text)}\n")
         if rotation:
-            out += f" 50\n{_num(rotation)}\n"
+            out += f" 50\n{rotation:.4f}\n"
         if centre:   # bottom centre: horizontal 1, vertical 1, at the alignment point
-            out += f" 72\n1\n 11\n{_num(x)}\n 21\n{_num(y)}\n 31\n0.0\n100\nAcDbText\n 73\n1\n"
+            out += f" 72\n1\n 11\n{x:.4f}\n 21\n{y:.4f}\n 31\n0.0\n100\nAcDbText\n 73\n1\n"
         else:
             out += "100\nAcDbText\n"
         self.buf.append(out)
 
     def insert(self, layer, block, x, y, z, scale, attribs, xd):
+        """An insert and its attributes; blank attributes are left out (the block defines them all)."""
         h = self.entity("INSERT", layer)
-        self.buf.append(f"100\nAcDbBlockReference\n 66\n1\n  2\n{block}\n 10\n{_num(x)}\n 20\n{_num(y)}\n"
-                        f" 30\n{_num(z)}\n 41\n{_num(scale)}\n 42\n{_num(scale)}\n 43\n{_num(scale)}\n")
+        sx, sy, sz, ss = f"{x:.4f}", f"{y:.4f}", f"{z:.4f}", f"{scale:.4f}"
+        self.buf.append(f"100\nAcDbBlockReference\n 66\n1\n  2\n{block}\n 10\n{sx}\n 20\n{sy}\n 30\n{sz}\n"
+                        f" 41\n{ss}\n 42\n{ss}\n 43\n{ss}\n")
         self.xdata(xd)
-        for j, (tag, value) in enumerate(attribs):
-            # the id shows beside the symbol; the other values are hidden attributes at the same place
-            ax, ay = x + 0.9 * scale, y + 0.9 * scale
-            self.entity("ATTRIB", layer, h)
-            self.buf.append(f"100\nAcDbText\n 10\n{_num(ax)}\n 20\n{_num(ay)}\n 30\n{_num(z)}\n"
-                            f" 40\n{_num(scale)}\n  1\n{_txt(value)}\n100\nAcDbAttribute\n280\n0\n"
-                            f"  2\n{tag}\n 70\n{0 if j == 0 else 1}\n")
+        # the id shows beside the symbol; the other values are hidden attributes at the same place
+        ax, ay = f"{x + 0.9 * scale:.4f}", f"{y + 0.9 * scale:.4f}"
+        pre = f"330\n{h}\n100\nAcDbEntity\n  8\n{layer}\n100\nAcDbText\n 10\n{ax}\n 20\n{ay}\n 30\n{sz}\n 40\n{ss}\n"
+        first = True
+        for tag, value in attribs:
+            if value == "" and not first:
+                continue
+            a = self.h
+            self.h += 1
+            self.buf.append(f"  0\nATTRIB\n  5\n{a:X}\n{pre}  1\n{_txt(value)}\n100\nAcDbAttribute\n280\n0\n"
+                            f"  2\n{tag}\n 70\n{0 if first else 1}\n")
+            first = False
         self.seqend(h, layer)
 
 
@@ -645,6 +654,24 @@ def write_dxf(layout, path, *, by="role", polylines="3d", text_height_m=None, or
     inv_n = np.asarray(layout.nodes.get("invert_m", np.full(n, np.nan)), float)
     pres_n = np.asarray(layout.nodes.get("pressure_head_m", np.full(n, np.nan)), float)
 
+    def filled(values):
+        return sum(1 for j, v in enumerate(values) if j == 0 or v != "")
+
+    elev_s = [_fmt_level(v) for v in elev.tolist()]
+    node_attrs = [list(zip(_ATTR_TAGS, (ids[k], roles[k], "", elev_s[k], _fmt_level(inv_n[k]), _fmt_level(pres_n[k]),
+                                        _fmt_level(elev[k] - inv_n[k])))) for k in range(n)]
+    ap_attrs, fit_attrs = [], []
+    for j in range(n_ap):
+        g, iv = float(ap.get("ground_m", [np.nan] * n_ap)[j]), float(ap.get("invert_m", [np.nan] * n_ap)[j])
+        kind = str(ap["kind"][j]) if "kind" in ap else "access point"
+        ap_attrs.append(list(zip(_ATTR_TAGS, (f"AP{j + 1}", kind, "", _fmt_level(g), _fmt_level(iv), "",
+                                              _fmt_level(g - iv)))))
+    for j in range(n_fit):
+        size = float(fit["size_mm"][j]) if "size_mm" in fit else float("nan")
+        fit_attrs.append(list(zip(_ATTR_TAGS, (f"F{j + 1}", str(fit["type"][j]),
+                                               f"{size:.0f}" if math.isfinite(size) else "", "", "", "", ""))))
+    n_attribs = sum(filled([v for _, v in a]) for a in node_attrs + ap_attrs + fit_attrs)
+
     def entities(f, w):
         for i in range(m):
             v = verts[i]
@@ -673,44 +700,38 @@ def write_dxf(layout, path, *, by="role", polylines="3d", text_height_m=None, or
             counts[lab_link] = counts.get(lab_link, 0) + 1
             if len(w.buf) > 4096:
                 w.flush()
+        xs, ys, zs = (xy[:, 0] - x0).tolist(), (xy[:, 1] - y0).tolist(), np.nan_to_num(elev).tolist()
         for k in range(n):
-            z = float(elev[k]) if np.isfinite(elev[k]) else 0.0
-            px, py, pz = xy[k, 0] - x0, xy[k, 1] - y0, (z if polylines == "3d" else 0.0)
-            depth = elev[k] - inv_n[k]
-            attrs = list(zip(_ATTR_TAGS, (ids[k], roles[k], "", _fmt_level(elev[k]), _fmt_level(inv_n[k]),
-                                          _fmt_level(pres_n[k]), _fmt_level(depth))))
+            pz = zs[k] if polylines == "3d" else 0.0
             block = "MS_SOURCE" if roles[k] in ("source", "outlet") else "MS_NODE"
-            w.insert(node_layer[k], block, px, py, pz, h, attrs, [f"node_id={ids[k]}", f"role={roles[k]}"])
+            w.insert(node_layer[k], block, xs[k], ys[k], pz, h, node_attrs[k], [f"node_id={ids[k]}", f"role={roles[k]}"])
             counts[node_layer[k]] = counts.get(node_layer[k], 0) + 1
-            w.text(lab_node, ids[k], px + 0.9 * h, py + 0.9 * h, h)
+            w.text(lab_node, ids[k], xs[k] + 0.9 * h, ys[k] + 0.9 * h, h)
             counts[lab_node] = counts.get(lab_node, 0) + 1
             if len(w.buf) > 4096:
                 w.flush()
         for j in range(n_ap):
-            g, iv = float(ap.get("ground_m", [np.nan] * n_ap)[j]), float(ap.get("invert_m", [np.nan] * n_ap)[j])
-            kind = str(ap["kind"][j]) if "kind" in ap else "access point"
-            aid = f"AP{j + 1}"
-            attrs = list(zip(_ATTR_TAGS, (aid, kind, "", _fmt_level(g), _fmt_level(iv), "", _fmt_level(g - iv))))
+            g = float(ap.get("ground_m", [np.nan] * n_ap)[j])
             px, py = float(ap["x"][j]) - x0, float(ap["y"][j]) - y0
             pz = g if (polylines == "3d" and math.isfinite(g)) else 0.0
-            w.insert(lay_ap, "MS_ACCESS", px, py, pz, h, attrs,
-                     [f"access_id={aid}", f"link_id={ap['link_id'][j]}" if "link_id" in ap else "link_id="])
+            w.insert(lay_ap, "MS_ACCESS", px, py, pz, h, ap_attrs[j],
+                     [f"access_id=AP{j + 1}", f"link_id={ap['link_id'][j]}" if "link_id" in ap else "link_id="])
             counts[lay_ap] = counts.get(lay_ap, 0) + 1
+            if len(w.buf) > 4096:
+                w.flush()
         for j in range(n_fit):
-            size = float(fit["size_mm"][j]) if "size_mm" in fit else float("nan")
-            fid = f"F{j + 1}"
-            attrs = list(zip(_ATTR_TAGS, (fid, str(fit["type"][j]), f"{size:.0f}" if math.isfinite(size) else "",
-                                          "", "", "", "")))
-            w.insert(lay_fit, "MS_FITTING", float(fit["x"][j]) - x0, float(fit["y"][j]) - y0, 0.0, h, attrs,
-                     [f"fitting_id={fid}", f"type={fit['type'][j]}",
+            w.insert(lay_fit, "MS_FITTING", float(fit["x"][j]) - x0, float(fit["y"][j]) - y0, 0.0, h, fit_attrs[j],
+                     [f"fitting_id=F{j + 1}", f"type={fit['type'][j]}",
                       f"link_id={fit['link_id'][j]}" if "link_id" in fit else "link_id="])
             counts[lay_fit] = counts.get(lay_fit, 0) + 1
+            if len(w.buf) > 4096:
+                w.flush()
         w.flush()
 
     # handles are known before writing (one per entity, vertex, attribute and end marker), so the
     # header's handle seed is written first and the entities go straight to the file
     n_link_handles = m * (2 if polylines == "2d" else 0) + (sum(len(v) + 3 for v in verts) if polylines == "3d" else 0)
-    n_handles = n_link_handles + n * (2 + len(_ATTR_TAGS) + 1) + (n_ap + n_fit) * (len(_ATTR_TAGS) + 2)
+    n_handles = n_link_handles + n * 3 + (n_ap + n_fit) * 2 + n_attribs
 
     def write(f):
         f.write(text[:seed_match.start(1)])
