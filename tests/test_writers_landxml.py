@@ -6,7 +6,11 @@ file back: namespace, required root attributes, units, element order inside
 Struct and Pipe, northing-first coordinates, references and flow direction.
 """
 
+import re
+
 import numpy as np
+
+from mainspan.errors import InputError
 import pytest
 
 try:
@@ -33,7 +37,12 @@ def test_round_trip(tmp_path, system, net_type):
     p = write_landxml(lay, tmp_path / "net.xml")
     root = _parse(p)
     assert root.tag == f"{{{LANDXML_NS}}}LandXML" and root.get("version") == "1.2"
-    assert root.get("date") == "2000-01-01" and root.get("time") == "00:00:00"
+    # the date is the day the file is written (UTC), not a fixed placeholder
+    import datetime
+
+    today = datetime.datetime.now(datetime.timezone.utc).date()
+    assert abs((datetime.date.fromisoformat(root.get("date")) - today).days) <= 1
+    assert re.match(r"^\d{2}:\d{2}:\d{2}$", root.get("time"))
     metric = root.find("x:Units/x:Metric", NS)
     assert metric.get("linearUnit") == "meter" and metric.get("diameterUnit") == "millimeter"
     cs = root.find("x:CoordinateSystem", NS)
@@ -96,7 +105,8 @@ def test_round_trip(tmp_path, system, net_type):
         assert not net.findall(".//x:Invert", NS)
 
 
-def test_escaping_and_determinism(tmp_path):
+def test_escaping_and_determinism(tmp_path, monkeypatch):
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "1767225600")      # 2026-01-01T00:00:00Z
     lay = make_layout("pressure")
     lay.nodes["node_id"] = lay.nodes["node_id"].copy()
     lay.nodes["node_id"][3] = 'C <&> "quoted"'
@@ -105,6 +115,8 @@ def test_escaping_and_determinism(tmp_path):
     a = write_landxml(lay, tmp_path / "a.xml")
     b = write_landxml(lay, tmp_path / "b.xml")
     assert open(a, "rb").read() == open(b, "rb").read()
+    root = _parse(a)
+    assert (root.get("date"), root.get("time")) == ("2026-01-01", "00:00:00")
     names = [s.get("name") for s in _parse(a).iterfind(".//x:Struct", NS)]
     assert 'C <&> "quoted"' in names
     with pytest.raises(OverwriteError, match="--overwrite"):
@@ -136,3 +148,28 @@ def test_gravity_design_names_for_inverts(tmp_path):
     inv_b = [(i.get("refPipe"), i.get("elev")) for i in rb.iterfind(".//x:Invert", NS)]
     assert inv_a == inv_b and inv_a
     assert strip(open(da, "rb").read()) == strip(open(db, "rb").read())
+
+
+def test_bad_source_date_epoch(tmp_path, monkeypatch):
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "yesterday")
+    with pytest.raises(InputError, match="SOURCE_DATE_EPOCH"):
+        write_landxml(make_layout(None), tmp_path / "e.xml")
+
+
+def test_access_points_and_fittings_are_structs(tmp_path):
+    # read back with lxml: one Struct per node, access point and fitting, with rims, sumps and centres
+    lay = make_layout("gravity")
+    lay.tables["access_points"] = {"link_id": np.array([1]), "chainage_m": np.array([10.0]),
+                                   "x": np.array([500100.0]), "y": np.array([5000200.0]),
+                                   "ground_m": np.array([201.25]), "invert_m": np.array([198.0])}
+    lay.tables["fittings"] = {"type": np.array(["washout"], object), "size_mm": np.array([80.0]),
+                              "link_id": np.array([2]), "chainage_m": np.array([4.0]), "node": np.array([-1]),
+                              "x": np.array([500110.0]), "y": np.array([5000210.0])}
+    root = _parse(write_landxml(lay, tmp_path / "s.xml"))
+    st = {s.get("name"): s for s in root.iterfind(".//x:Struct", NS)}
+    assert len(st) == lay.n_nodes + 2
+    ap = st["AP1"]
+    assert float(ap.get("elevRim")) == 201.25 and float(ap.get("elevSump")) == 198.0
+    assert ap.find("x:Center", NS).text.split() == ["5000200.000", "500100.000", "201.250"]
+    props = {p.get("label"): p.get("value") for p in st["F1"].iterfind(".//x:Property", NS)}
+    assert props["type"] == "washout" and float(props["size_mm"]) == 80.0 and props["link_id"] == "2"

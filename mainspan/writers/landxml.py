@@ -22,10 +22,16 @@ What is written (namespace ``http://www.landxml.org/schema/LandXML-1.2``):
   (flow, cost, checks, …) go to a ``Feature`` of ``Property`` label/value
   pairs so nothing is lost.
 
-LandXML requires ``date`` and ``time`` on the root element.  To keep the file
-reproducible they come from the run (``run_info["date"]``/``["time"]``, or an
-ISO ``run_info["timestamp"]``) when present, and otherwise are fixed at
-``2000-01-01`` ``00:00:00`` — they do not mean "when the file was written".
+* Access points (manholes) and fittings (valves, washouts, thrust blocks
+  ...) of the design as further ``Struct`` elements (names ``AP<k>`` and
+  ``F<k>``; ``elevRim``/``elevSump`` for access points; their link, chainage,
+  type and size as ``Feature`` properties), so the structures reach CAD.
+
+LandXML requires ``date`` and ``time`` on the root element: the moment the
+file is written (UTC), or ``SOURCE_DATE_EPOCH`` (seconds since 1970, UTC) when
+that environment variable is set, so a build can be reproduced byte for byte;
+a date given by the run (``run_info["date"]``/``["time"]``, or an ISO
+``run_info["timestamp"]``) is used before the clock.
 
 Where no pipe sizes exist (a plan without a system) the pipes carry no
 ``CircPipe``; where no inverts exist, no ``Invert`` elements are written.
@@ -70,13 +76,26 @@ def _finite(v):
 
 
 def _date_time(info):
+    """(date, time) for the root element: SOURCE_DATE_EPOCH, else the run's own, else now (UTC)."""
+    import datetime
+    import os
+
+    sde = os.environ.get("SOURCE_DATE_EPOCH", "").strip()
+    if sde:
+        try:
+            when = datetime.datetime.fromtimestamp(int(sde), tz=datetime.timezone.utc)
+        except (ValueError, OverflowError, OSError):
+            raise InputError(f"SOURCE_DATE_EPOCH={sde!r} is not a whole number of seconds since 1970; "
+                             "set it to an integer (e.g. `date +%s`) or unset it") from None
+        return when.strftime("%Y-%m-%d"), when.strftime("%H:%M:%S")
     d, t = str(info.get("date", "")), str(info.get("time", ""))
     stamp = str(info.get("timestamp", ""))
     m = re.match(r"^(\d{4}-\d{2}-\d{2})[T ](\d{2}:\d{2}:\d{2})", stamp)
     if m and not d:
         d, t = m.group(1), m.group(2)
+    now = datetime.datetime.now(datetime.timezone.utc)
     if not re.match(r"^\d{4}-\d{2}-\d{2}$", d):
-        d = FIXED_DATE
+        return now.strftime("%Y-%m-%d"), now.strftime("%H:%M:%S")
     if not re.match(r"^\d{2}:\d{2}:\d{2}$", t):
         t = FIXED_TIME
     return d, t
@@ -101,6 +120,29 @@ def _features(parent, E, columns, i, skip):
         val = val.item() if hasattr(val, "item") else val
         feat.append(E("Property", label=str(k), value=format_value(val, k)))
     parent.append(feat)
+
+
+def _structures(structs, E, layout):
+    """Access points and fittings as Structs (see the module notes)."""
+    for prefix, table, done in (("AP", layout.tables.get("access_points") or {}, {"x", "y", "ground_m", "invert_m"}),
+                                ("F", layout.tables.get("fittings") or {}, {"x", "y"})):
+        k_all = len(table.get("x", ()))
+        for j in range(k_all):
+            attrs = {"name": f"{prefix}{j + 1}"}
+            g = float(np.asarray(table.get("ground_m", np.full(k_all, np.nan)), float)[j])
+            iv = float(np.asarray(table.get("invert_m", np.full(k_all, np.nan)), float)[j])
+            if _finite(g):
+                attrs["elevRim"] = _f(g)
+            if _finite(iv):
+                attrs["elevSump"] = _f(iv)
+            s = E("Struct", **attrs)
+            center = f"{float(table['y'][j]):.3f} {float(table['x'][j]):.3f}"     # northing first
+            if _finite(g):
+                center += f" {g:.3f}"
+            s.append(E("Center", center))
+            s.append(E("Connection"))
+            _features(s, E, table, j, done)
+            structs.append(s)
 
 
 def write_landxml(layout, path, *, overwrite=False):
@@ -209,6 +251,7 @@ def write_landxml(layout, path, *, overwrite=False):
                                flowDir=direction))
         _features(s, E, layout.nodes, i, _NODE_DONE)
         structs.append(s)
+    _structures(structs, E, layout)
     net.append(structs)
 
     pipes = E("Pipes")
