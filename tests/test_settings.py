@@ -23,11 +23,11 @@ PRIMARY = {"sites.path": "--sites", "crs.working": "--crs", "candidates.method":
            "output.gpkg": "--output"}
 
 
-def _plan_parser():
+def _plan_parser(command="plan"):
     from mainspan.cli import build_parser
 
     sub = next(a for a in build_parser()._actions if isinstance(a, argparse._SubParsersAction))
-    return sub.choices["plan"]
+    return sub.choices[command]
 
 
 def _cli_settings(parser):
@@ -59,18 +59,31 @@ def test_cli_project_and_run_info_expose_the_same_settings(tmp_path):
     proj = _schema()
     assert {f"{sec}.{k}" for sec, keys in proj.items() if sec not in ("scenarios", "stability")
             for k in keys} == set(schema)
+    # the compare command's own settings: its options and the project's [stability] keys
+    from mainspan.settings.schema import COMPARE_SETTINGS
+    compare = _cli_settings(_plan_parser("compare"))
+    assert {n for n in compare if n.startswith("stability.")} == \
+        {s.name for s in COMPARE_SETTINGS}
+    assert set(proj["stability"]) == {s.key for s in COMPARE_SETTINGS}
+    assert not any(n.startswith("stability.") for n in cli)
     # run_info: every recorded setting under its entry, by its key inside group entries
     s = mainspan.sites_from_arrays([[0, 0], [100, 0], [100, 120], [0, 100]],
                                    crs="EPSG:32633", demand_lps=[0, 1, 1, 1])
     lay = mainspan.plan_layout(s, system="pressure", k=3, candidates="knn")
     info = lay.run_info
+    # the whole-cost limits are recorded by the layout they limit
+    whole = mainspan.plan_layout(s, system="pressure", layout="whole-cost",
+                                 whole_cost={"max_hops": 3}).run_info
+    assert "whole_cost_max_hops=3," in whole["whole_cost_settings"]
+    assert "whole_cost_settings" not in info
+    info = {**whole, **info}
     recorded = [x for x in schema.values() if x.run_info]
     assert {x.section for x in recorded} >= {"sites", "rasters", "costs", "candidates", "tree",
                                              "design"}
     for x in recorded:
         assert x.run_info in info, x.name
-        if x.run_info in ("weights", "design_settings") and x.section != "prices" \
-                and x.key != "catalog":
+        if x.run_info in ("weights", "design_settings", "whole_cost_settings") and \
+                x.section != "prices" and x.key != "catalog":
             assert f"{x.key}=" in info[x.run_info], x.name
     assert info["k"] == "3" and info["candidates"] == "knn" and info["system"] == "pressure"
 
@@ -124,7 +137,10 @@ def test_plan_help_lists_every_design_key_with_unit_and_default(capsys):
         assert row is not None, s.key
         assert f"default {format_default(s)}" in row, row
         assert f"[{s.unit or '-'}]" in row, row
+        assert s.bounds() in row, row          # the range, where the checks have one
         assert s.option in text
+    assert "velocity_max_mps             [m/s] default 1.5; > 0" in text
+    assert "quality_of_operation         [-] default 0.95; >= 0.5 and < 1" in text
     # the units come from the names (and the docstring): spot checks
     assert setting("design", "velocity_max_mps").unit == "m/s"
     assert setting("design", "headloss_max_m_per_km").unit == "m/km"
@@ -144,6 +160,14 @@ def no_work(monkeypatch):
     monkeypatch.setattr("mainspan.sites.read.read_sites", stage("read_sites"))
     monkeypatch.setattr("mainspan.graph.candidates.build_candidates", stage("build_candidates"))
     monkeypatch.setattr("mainspan.ground.costs.price_links", stage("price_links"))
+    # the stage functions themselves, where plan_layout and the scenarios call them
+    for mod, names in (("mainspan.pipeline.layout", ("read_stage", "candidates_stage",
+                                                     "price_stage", "elevation_stage",
+                                                     "grow_tree", "assemble_layout")),
+                       ("mainspan.scenarios.compute", ("candidates_stage", "price_stage")),
+                       ("mainspan.scenarios.tasks", ("grow_tree", "assemble_layout"))):
+        for name in names:
+            monkeypatch.setattr(f"{mod}.{name}", stage(name))
     return calls
 
 
@@ -152,7 +176,13 @@ def test_bad_values_and_combinations_exit_2_before_any_work(tmp_path, capsys, no
     p = ["--system", "pressure"]
     cases = [
         ([*s, *p, "--design", "velocity_max_mps=fast"], "option --design velocity_max_mps: the "
-         "velocity cap must be a number in m/s, got 'fast'"),
+         "velocity cap must be a number > 0 in m/s, got 'fast'"),
+        ([*s, *p, "--quality-of-operation", "1"], "option --quality-of-operation: the "
+         "probability that the design flow is not exceeded must be a number >= 0.5 and < 1"),
+        ([*s, *p, "--layout", "whole-cost", "--whole-cost-max-hops", "0"],
+         "option --whole-cost-max-hops: must be an integer >= 1, got 0"),
+        ([*s, *p, "--layout", "whole-cost", "--whole-cost-alphas", "[0, 2]"],
+         "option --whole-cost-alphas: whole-cost option 'alphas' must be numbers in [0, 1]"),
         ([*s, *p, "--velocity-max-mps", "-1"], "option --velocity-max-mps"),
         ([*s, *p, "--design", "headloss_method=darcy"], "one of 'colebrook'"),
         ([*s, *p, "--design", "velocity_cap=2"], "did you mean 'velocity_max_mps'"),
@@ -192,6 +222,50 @@ def test_project_file_values_are_checked_with_their_place(tmp_path, capsys, no_w
     code, out, err = run_cli(["plan", proj, "--velocity-max-mps", "0"], capsys)
     assert code == 2 and "option --velocity-max-mps" in err
     assert no_work == []
+
+
+def test_design_bounds_are_the_dataclass_checks():
+    """Each range shown in --help and checked at the boundary is one DesignSettings enforces:
+    just outside it the dataclass refuses the value, at a closed bound it takes it."""
+    from mainspan.hydraulics import DesignSettings
+    from mainspan.hydraulics.design_settings import DESIGN_BOUNDS
+
+    fields = {s.key: s for s in all_settings("design")}
+    assert len(DESIGN_BOUNDS) > 30 and set(DESIGN_BOUNDS) <= set(fields)
+    # cross-field rules a single value can trip at a closed bound
+    room = {"hydrant_hours_per_day": {"network_hours_per_day": 24.0},
+            "velocity_min_mps": {}, "peaking_factor": {}}
+    for name, (lo, hi, lo_open, hi_open) in DESIGN_BOUNDS.items():
+        step = 1 if fields[name].kind == "integer" else 1e-6
+        for bound, is_open, outside in ((lo, lo_open, -step), (hi, hi_open, step)):
+            if bound is None:
+                continue
+            with pytest.raises(InputError, match=name):
+                DesignSettings(**{name: bound + (0 if is_open else outside)})
+            if not is_open:
+                DesignSettings(**{name: bound, **room.get(name, {})})
+
+
+def test_compare_stability_checked_before_any_work(tmp_path, capsys, no_work):
+    proj = tmp_path / "p.toml"
+    proj.write_text('[sites]\npath = "s.gpkg"\n[stability]\nruns = 4\n')
+    code, out, err = run_cli(["compare", proj, "--stability", "5000"], capsys)
+    assert code == 2 and "option --stability: must be an integer >= 0 and <= 1000, got 5000" \
+        in err, err
+    code, out, err = run_cli(["compare", proj, "--perturb-pct", "100"], capsys)
+    assert code == 2 and "option --perturb-pct: must be a number >= 0 and < 100 in %" in err, err
+    proj.write_text('[sites]\npath = "s.gpkg"\n[stability]\nseed = -1\n')
+    code, out, err = run_cli(["compare", proj], capsys)
+    assert code == 2 and "[stability] seed: must be an integer >= 0, got -1" in err, err
+    assert no_work == []
+    from mainspan.scenarios.compute import MAX_STABILITY_RUNS
+    assert setting_of_compare("runs").hi == MAX_STABILITY_RUNS
+
+
+def setting_of_compare(key):
+    from mainspan.settings.schema import COMPARE_SETTINGS
+
+    return next(s for s in COMPARE_SETTINGS if s.key == key)
 
 
 def test_scenarios_are_all_checked_before_any_work(tmp_path, no_work):

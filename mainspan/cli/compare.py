@@ -12,9 +12,6 @@ def add_parser(sub):
     cp.add_argument("project", help="project TOML file with [scenarios.NAME] sections")
     cp.add_argument("--out", metavar="GPKG", help="GeoPackage for all scenario layers")
     cp.add_argument("--report", metavar="HTML", help="HTML report with the comparison")
-    cp.add_argument("--stability", type=int, metavar="N", help="perturbation runs per scenario")
-    cp.add_argument("--perturb-pct", type=float, metavar="X", help="± land-cost perturbation")
-    cp.add_argument("--seed", type=int, help="seed of the perturbations")
     cp.add_argument("--memory-limit", metavar="SIZE",
                     help="refuse work estimated to need more memory than SIZE, e.g. 4G "
                     "(default: half the installed memory)")
@@ -22,6 +19,11 @@ def add_parser(sub):
     cp.add_argument("--allow-outside-project", action="store_true",
                     help="let the project file's [output] paths lie outside its folder")
     cp.add_argument("--quiet", action="store_true", help="no progress on stderr")
+    from ..settings.schema import COMPARE_SETTINGS     # --stability, --perturb-pct, --seed
+    gs = cp.add_argument_group("stability of the scenario layouts (also [stability] in the "
+                               "project file)")
+    for s in COMPARE_SETTINGS:
+        _add_option(gs, s)
     from ..settings import SECTIONS, all_settings     # --workers, --cluster (mainspan.execution)
     gx = cp.add_argument_group(SECTIONS["execution"])
     for s in all_settings("execution"):

@@ -29,6 +29,8 @@ def _help(s):
     if s.default is not None and s.kind not in ("path", "table", "list"):
         from ..settings import format_default
         bits.append(f"default {format_default(s)}")
+    if s.bounds():
+        bits.append(s.bounds())
     if s.choices:
         bits.insert(0, "one of " + ", ".join(s.choices))
     text = s.help + (f" [{'; '.join(bits)}]" if bits else "")

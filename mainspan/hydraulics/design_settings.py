@@ -19,7 +19,7 @@ from .pressure import HEADLOSS_METHODS
 from .prices import PriceTable, default_prices
 from .sizing import SIZING_METHODS
 
-__all__ = ["CAUTION", "SYSTEMS", "DEMAND_MODELS", "DesignSettings"]
+__all__ = ["CAUTION", "SYSTEMS", "DEMAND_MODELS", "DESIGN_BOUNDS", "DesignSettings"]
 
 #: Systems :func:`design_network` can design.
 SYSTEMS = ("pressure", "gravity")
@@ -387,6 +387,51 @@ class DesignSettings:
 
 #: Demand models of pressure mains (DesignSettings.demand_model).
 DEMAND_MODELS = ("continuous", "clement", "peaking")
+
+#: The range of each number that the checks of :class:`DesignSettings` enforce on
+#: the number alone: ``name -> (lo, hi, lo_open, hi_open)`` (None: unbounded).  The
+#: settings schema shows them in ``--help`` and checks them at the boundary;
+#: ``tests/test_settings.py`` checks that each is enforced here.  Rules between
+#: fields (velocity_min_mps below velocity_max_mps, hydrant hours within network
+#: hours, a peaking factor above 1 for the ``peaking`` demand model) stay in the checks.
+DESIGN_BOUNDS = {
+    "peaking_factor": (0.0, None, True, False),
+    "min_flow_lps": (0.0, None, False, False),
+    "trench_cost_per_m3": (0.0, None, False, False),
+    "trench_side_clearance_m": (0.0, None, False, False),
+    "bedding_m": (0.0, None, False, False),
+    "water_temperature_c": (0.0, 40.0, False, False),
+    "velocity_max_mps": (0.0, None, True, False),
+    "headloss_max_m_per_km": (0.0, None, True, False),
+    "minor_loss_factor": (0.0, None, False, False),
+    "min_pressure_m": (0.0, None, False, False),
+    "pressure_cover_m": (0.0, None, False, False),
+    "highs_max_links": (0.0, None, False, False),
+    "velocity_min_mps": (0.0, None, False, False),
+    "valve_closing_time_s": (0.0, None, True, False),
+    "energy_pv_per_kw": (0.0, None, False, False),
+    "manning_n": (0.0, None, True, False),
+    "gravity_min_diameter_mm": (0.0, None, True, False),
+    "gravity_min_velocity_mps": (0.0, None, False, False),
+    "gravity_cover_m": (0.0, None, False, False),
+    "gravity_max_depth_m": (0.0, None, True, False),
+    "junction_drop_m": (0.0, None, False, False),
+    "access_spacing_m": (0.0, None, True, False),
+    "drop_manhole_m": (0.0, None, False, False),
+    "lift_efficiency": (0.0, 1.0, True, False),
+    "lift_head_allowance_m": (0.0, None, False, False),
+    "sanitary_per_capita_lpd": (0.0, None, True, False),
+    "storm_inlet_time_min": (0.0, None, True, False),
+    "storm_min_velocity_mps": (0.0, None, False, False),
+    "operating_probability": (0.0, 1.0, True, False),
+    "hydrant_hours_per_day": (0.0, 24.0, True, False),
+    "network_hours_per_day": (0.0, 24.0, True, False),
+    "quality_of_operation": (0.5, 1.0, False, True),
+    "pump_efficiency": (0.0, 1.0, True, False),
+    "fitting_min_prominence_m": (0.0, None, False, False),
+    "thrust_bend_angle_deg": (0.0, None, False, False),
+    "max_service_pressure_m": (0.0, None, True, False),
+}
 
 
 def _check_pressure_extras(s):

@@ -111,6 +111,7 @@ def plan_layout(sites, settings=None, *, terrain=None, land_cost=None, cost_expr
     whole_cost : WholeCostSettings or dict, optional
         Limits of the ``"whole-cost"`` search (start α values, hops, designs
         per pass, total designs); see :class:`mainspan.graph.wholecost.WholeCostSettings`.
+        The settings schema declares them as ``[tree] whole_cost_<name>``.
     network : keywords, optional
         The ``[network]`` settings (:mod:`mainspan.pipeline.extend`): ``existing`` (a line
         layer of existing mains), ``existing_layer``, ``existing_diameter_field``,
@@ -144,7 +145,8 @@ def plan_layout(sites, settings=None, *, terrain=None, land_cost=None, cost_expr
                  corridor_cell_m=corridor_cell_m, corridor_margin_m=corridor_margin_m,
                  corridor_tolerance_pct=corridor_tolerance_pct,
                  corridor_memory_mb=corridor_memory_mb, barrier=barrier, avoid=avoid,
-                 crossing=crossing, junctions=junctions, **_network_kwargs(network))
+                 crossing=crossing, junctions=junctions, whole_cost=whole_cost,
+                 **_network_kwargs(network))
     if settings is None:        # every value and combination checked before any work
         settings = PlanSettings.from_kwargs(**given)
     elif not isinstance(settings, PlanSettings):
@@ -190,7 +192,7 @@ def plan_layout(sites, settings=None, *, terrain=None, land_cost=None, cost_expr
                                          node_order=getattr(cands, "node_order", None),
                                          terrain_surface=surf,
                                          sample_spacing_m=plan["sample_spacing_m"],
-                                         system=plan["system"], whole_cost=whole_cost)
+                                         system=plan["system"], whole_cost=plan["whole_cost"])
     # --- route14: Steiner junctions on the straight tree (--junctions) ---
     sites, cands, costs, tree, cert, el2 = routing.junctions_after_tree(
         sites, cands, costs, tree, cert, plan, weights=weights, root_idx=root_idx,
@@ -231,7 +233,7 @@ _PLAN_DEFAULTS = dict(terrain=None, land_cost=None, cost_expression=None, class_
                       layout="tree", route="straight", connectivity=16, corridor_cell_m=None,
                       corridor_margin_m=None, corridor_tolerance_pct=1.0,
                       corridor_memory_mb=2048.0, barrier=None, avoid=None, crossing=None,
-                      junctions=False)
+                      junctions=False, whole_cost=None)
 
 
 def _network_kwargs(network):

@@ -9,7 +9,7 @@ from .compute import run_scenarios
 from .output import layer_names, write_scenarios
 from .report import decision_sections, detail_sections
 
-__all__ = ["compare_cli", "execution_settings"]
+__all__ = ["compare_cli", "execution_settings", "stability_settings"]
 
 # ------------------------------------------------------------------------------ CLI
 def _suffixed(path, suffix):
@@ -35,6 +35,23 @@ def execution_settings(args, proj) -> dict:
     return checked["execution"]
 
 
+def stability_settings(args, proj) -> dict:
+    """The checked ``[stability]`` settings: the options', else the project file's."""
+    from ..settings import parse_text
+    from ..settings.checks import check_stability
+    from ..settings.schema import COMPARE_SETTINGS
+
+    merged = dict(proj.stability or {})
+    origin = {}
+    for st in COMPARE_SETTINGS:
+        v = getattr(args, f"{st.section}__{st.key}", None)
+        if v is not None:
+            origin[st.key] = f"option {st.option}"
+            merged[st.key] = parse_text(st, v, origin[st.key])
+    return check_stability(merged, lambda key: origin.get(
+        key, f"project {proj.path!r} [stability] {key}"))
+
+
 def compare_cli(args):
     """``mainspan compare PROJECT.toml``: plan every scenario, print and write the comparison.
 
@@ -50,10 +67,8 @@ def compare_cli(args):
 
     proj = load_project(args.project)
     out = proj.base.get("output", {})
-    stab = proj.stability or {}
-    runs = args.stability if args.stability is not None else stab.get("runs", 0)
-    pct = args.perturb_pct if args.perturb_pct is not None else stab.get("perturb_pct", 10.0)
-    seed = args.seed if args.seed is not None else stab.get("seed", 0)
+    stab = stability_settings(args, proj)
+    runs, pct, seed = stab["runs"], stab["perturb_pct"], stab["seed"]
     overwrite = bool(args.overwrite or out.get("overwrite", False))
     gpkg = args.out or (_suffixed(out["gpkg"], "_scenarios") if out.get("gpkg") else None)
     rep = args.report or (_suffixed(out["report"], "_scenarios") if out.get("report") else None)

@@ -31,7 +31,8 @@ def _grow(sites, edges, costs, elev, root_idx, plan, *, certify=True, node_order
     return grow_tree(sites, edges, costs, elev, root_idx, layout=plan["layout"],
                      allow_forest=plan["allow_forest"], design=plan["design"],
                      certify=certify, node_order=node_order, terrain_surface=terrain_surface,
-                     sample_spacing_m=plan["sample_spacing_m"], system=plan["system"])
+                     sample_spacing_m=plan["sample_spacing_m"], system=plan["system"],
+                     whole_cost=plan["whole_cost"])
 
 
 def _tree_links(tree):

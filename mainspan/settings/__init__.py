@@ -35,7 +35,7 @@ Examples
 >>> parse_text(s, "fast", "option --design velocity_max_mps")
 Traceback (most recent call last):
 ...
-mainspan.errors.InputError: option --design velocity_max_mps: the velocity cap must be a number in m/s, got 'fast'; give a number such as velocity_max_mps=1.5
+mainspan.errors.InputError: option --design velocity_max_mps: the velocity cap must be a number > 0 in m/s, got 'fast'; give a number such as velocity_max_mps=1.5
 """
 
 from __future__ import annotations

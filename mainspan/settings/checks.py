@@ -11,9 +11,11 @@ import os
 import tomllib
 
 from ..errors import InputError
-from .schema import SECTIONS, Setting, all_settings, bad_value, format_default, unknown_key
+from .schema import (COMPARE_SETTINGS, SECTIONS, WHOLE_COST_PREFIX, Setting, all_settings,
+                     bad_value, format_default, unknown_key)
 
-__all__ = ["check_value", "parse_text", "parse_items", "check_settings", "design_settings"]
+__all__ = ["check_value", "parse_text", "parse_items", "check_settings", "design_settings",
+           "check_stability"]
 
 
 def _what(s):
@@ -278,6 +280,17 @@ def _build_objects(d, where):
         except InputError as exc:
             key = next((k for k in d["costs"] if k in str(exc)), next(iter(d["costs"])))
             raise InputError(f"{where('costs', key)}: {exc}") from None
+    whole = [k for k, v in d.get("tree", {}).items()
+             if k.startswith(WHOLE_COST_PREFIX) and v is not None]
+    if whole:
+        from ..graph.wholecost import WholeCostSettings
+
+        n = len(WHOLE_COST_PREFIX)
+        try:
+            WholeCostSettings(**{k[n:]: d["tree"][k] for k in whole})
+        except InputError as exc:
+            key = next((k for k in whole if f"'{k[n:]}'" in str(exc)), whole[0])
+            raise InputError(f"{where('tree', key)}: {exc}") from None
     system = _get(d, "design", "system")
     if system is not None:
         des = {k: v for k, v in d.get("design", {}).items() if k != "system"}
@@ -291,6 +304,23 @@ def _build_objects(d, where):
             if key is None or msg.startswith(where("design", key)):
                 raise
             raise InputError(f"{where('design', key)}: {msg}") from None
+
+
+def check_stability(values: dict, origin=None) -> dict:
+    """The ``compare`` command's ``[stability]`` settings, checked, defaults filled in.
+
+    ``origin(key) -> str`` names where each value came from (an option or the
+    project file); default ``"[stability] key"``.
+    """
+    where = origin or (lambda key: f"[stability] {key}")
+    keys = {s.key: s for s in COMPARE_SETTINGS}
+    out = {k: s.default for k, s in keys.items()}
+    for k, v in (values or {}).items():
+        if k not in keys:
+            raise unknown_key("[stability]", k, list(keys))
+        if v is not None:
+            out[k] = check_value(keys[k], v, where(k))
+    return out
 
 
 def design_settings(design, system):

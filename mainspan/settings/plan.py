@@ -6,7 +6,7 @@ import dataclasses
 import os
 
 from .checks import check_settings
-from .schema import _all, unknown_key
+from .schema import GROUPS, WHOLE_COST_PREFIX, _all, unknown_key
 
 __all__ = ["PlanSettings", "run_info_params"]
 
@@ -46,7 +46,19 @@ def run_info_params(kw: dict, *, candidates_label=None) -> dict:
         "on_nodata": kw.get("on_nodata", "barrier"),
         "weights": _fmt_dataclass(weights),
         "layout": kw.get("layout", "tree"),
+        **({"whole_cost_settings": ", ".join(  # under the [tree] keys that set them
+            f"{WHOLE_COST_PREFIX}{k}={v}"
+            for k, v in dataclasses.asdict(_whole_cost(kw.get("whole_cost"))).items())}
+           if kw.get("layout") == "whole-cost" else {}),
     }
+
+
+def _whole_cost(v):
+    from ..graph.wholecost import WholeCostSettings
+
+    if isinstance(v, WholeCostSettings):
+        return v
+    return WholeCostSettings(**(v or {}))
 
 
 # ------------------------------------------------------------------ settings object
@@ -80,22 +92,22 @@ class PlanSettings:
         """From :func:`mainspan.plan_layout` keywords, checked with the schema.
 
         Objects the API accepts beside plain values (a CostWeights, a
-        DesignSettings, an opened Surface) are kept as given.
+        DesignSettings, a WholeCostSettings, an opened Surface) are kept as given.
         """
-        api = {s.api: s for s in _all() if s.api and s.api not in ("weights", "design")}
+        api = {s.api: s for s in _all() if s.api and s.api not in GROUPS}
         sections, objects = {}, {}
         for name, v in kw.items():
-            if name in ("weights", "design"):
-                sec = "costs" if name == "weights" else "design"
+            if name in GROUPS:
+                sec, prefix = GROUPS[name]
                 if isinstance(v, dict):
-                    sections.setdefault(sec, {}).update(v)
+                    sections.setdefault(sec, {}).update({prefix + k: x for k, x in v.items()})
                 elif v is not None:
                     objects[name] = v       # a CostWeights / DesignSettings: checked already
             elif name in api:
                 if v is not None:
                     sections.setdefault(api[name].section, {})[api[name].key] = v
             else:
-                raise unknown_key("plan_layout()", name, sorted([*api, "weights", "design"]),
+                raise unknown_key("plan_layout()", name, sorted([*api, *GROUPS]),
                                   what="keyword")
         return cls(check_settings(sections, lambda sec, key: f"plan_layout({_api_name(sec, key)})"),
                    objects)
@@ -121,7 +133,7 @@ class PlanSettings:
         sec = self.sections
         plan = {}
         for s in _all():
-            if not s.api or s.api in ("weights", "design"):
+            if not s.api or s.api in GROUPS:
                 continue
             v = sec.get(s.section, {}).get(s.key)
             if v is not None:
@@ -135,6 +147,10 @@ class PlanSettings:
             d["prices"] = dict(sec["prices"])
         if d:
             plan["design"] = d
+        whole = {s.key[len(WHOLE_COST_PREFIX):]: sec["tree"][s.key] for s in _all()
+                 if s.api == "whole_cost" and sec.get("tree", {}).get(s.key) is not None}
+        if whole:
+            plan["whole_cost"] = whole
         plan.update(self.objects)
         return plan
 
@@ -143,9 +159,8 @@ class PlanSettings:
 
         What the stage functions of :mod:`mainspan.pipeline.stages` read.
         """
-        plan = {s.api: s.default for s in _all()
-                if s.api and s.api not in ("weights", "design")}
-        plan.update(weights=None, design=None)
+        plan = {s.api: s.default for s in _all() if s.api and s.api not in GROUPS}
+        plan.update(dict.fromkeys(GROUPS))
         plan.update(self.plan_kwargs())
         return plan
 
@@ -153,7 +168,7 @@ class PlanSettings:
 def _api_name(section, key):
     for s in _all():
         if s.section == section and s.key == key:
-            if s.api in ("weights", "design"):
-                return f"{s.api}[{key!r}]"
+            if s.api in GROUPS:
+                return f"{s.api}[{key[len(GROUPS[s.api][1]):]!r}]"
             return s.api or key
     return key

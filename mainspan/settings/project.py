@@ -37,18 +37,18 @@ from . import SECTIONS, PlanSettings, check_value, setting, unknown_key
 
 __all__ = ["Project", "load_project", "plan_kwargs", "check_design_keys", "SCHEMA"]
 
-# Every plan key is declared once in mainspan.settings; the compare command's
-# [stability] section and [scenarios.NAME] overrides are this module's own.
-_STABILITY = {"runs": "integer", "perturb_pct": "number", "seed": "integer"}
+# Every plan key is declared once in mainspan.settings, and the compare command's
+# [stability] keys too (COMPARE_SETTINGS); [scenarios.NAME] overrides are this module's own.
 
 
 def _schema():
     """``section -> {key: Setting or kind}`` of a project file."""
-    from . import SECTIONS, Setting, all_settings
+    from . import SECTIONS, all_settings
+    from .schema import COMPARE_SETTINGS
 
     s = {sec: {x.key: x for x in all_settings(sec)} for sec in SECTIONS}
     s["scenarios"] = "table"
-    s["stability"] = {k: Setting("stability", k, kind, lo=0.0) for k, kind in _STABILITY.items()}
+    s["stability"] = {x.key: x for x in COMPARE_SETTINGS}
     return s
 
 

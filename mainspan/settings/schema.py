@@ -15,8 +15,9 @@ from dataclasses import dataclass
 
 from ..errors import InputError
 
-__all__ = ["Setting", "STATIC_SETTINGS", "SECTIONS", "LAYOUTS", "all_settings", "setting",
-           "by_flag", "unknown_key", "bad_value", "format_default", "design_help", "ROUTES"]
+__all__ = ["Setting", "STATIC_SETTINGS", "COMPARE_SETTINGS", "GROUPS", "SECTIONS", "LAYOUTS",
+           "all_settings", "setting", "by_flag", "unknown_key", "bad_value", "format_default",
+           "design_help", "ROUTES"]
 
 #: Project-file sections of a plan, in order, with the help-group title of each.
 SECTIONS = {
@@ -116,6 +117,17 @@ class Setting:
     @property
     def on_cli(self) -> bool:
         return self.option != ""
+
+    def bounds(self) -> str:
+        """The range of a number in words (``> 0``, ``>= 0 and <= 40``), or ``""``."""
+        if self.kind not in ("number", "integer"):
+            return ""
+        out = []
+        if self.lo is not None:
+            out.append(f"{'>' if self.lo_open else '>='} {self.lo:g}")
+        if self.hi is not None:
+            out.append(f"{'<' if self.hi_open else '<='} {self.hi:g}")
+        return " and ".join(out)
 
     def expected(self) -> str:
         """What a valid value looks like, in words."""
@@ -331,6 +343,17 @@ STATIC_SETTINGS = (
       run_info="network", api="source_capacity_lps", repeat=True, metavar="ID=LPS"),
 )
 
+#: Settings of the ``compare`` command alone (the project file's ``[stability]``
+#: section): not plan settings, so the plan front ends do not show them.
+COMPARE_SETTINGS = (
+    S("stability", "runs", "integer", 0, "perturbed runs per scenario; 0 switches them off",
+      lo=0, hi=1000, flag="--stability", metavar="N"),
+    S("stability", "perturb_pct", "number", 10.0, "half-width of the uniform factor on each "
+      "link's land cost in the perturbed runs", unit="%", lo=0.0, hi=100.0, hi_open=True,
+      metavar="X"),
+    S("stability", "seed", "integer", 0, "seed of the perturbations", lo=0, metavar="N"),
+)
+
 # Units by name ending (longest first); names that carry none are listed below.
 _SUFFIX_UNITS = (("_m_per_km", "m/km"), ("_per_m3", "per m³"), ("_mps", "m/s"), ("_lps", "L/s"),
                  ("_lpd", "L/day per person"), ("_mm", "mm"), ("_pct", "%"), ("_min", "min"),
@@ -341,6 +364,14 @@ _NAMED_UNITS = {"manning_n": "s/m^(1/3)", "peaking_factor": "-", "minor_loss_fac
                 "fixed": "per link"}
 # Bounds of derived numbers the dataclass also enforces; kept here so --help can show them.
 _DERIVED_BOUNDS = {"costs": dict(lo=0.0)}
+# the whole-cost search limits (mainspan.graph.wholecost.WholeCostSettings) are [tree] keys
+# with this prefix; the group is the plan_layout keyword ``whole_cost``
+WHOLE_COST_PREFIX = "whole_cost_"
+_WHOLE_COST_BOUNDS = {k: (1, None, False, False) for k in ("max_hops", "per_pass",
+                                                          "max_evaluations")}
+#: The groups of settings that a plan_layout keyword takes whole (section, key prefix).
+GROUPS = {"weights": ("costs", ""), "design": ("design", ""),
+          "whole_cost": ("tree", WHOLE_COST_PREFIX)}
 # the older spellings of the cost-weight options
 _COST_ALIASES = {"length": ("--w-length",), "land": ("--w-land",), "climb": ("--w-climb",),
                  "descent": ("--w-descent",), "steep_per_m": ("--w-steep",),
@@ -395,8 +426,9 @@ def _kind_of(annotation, name=""):
     return "value"
 
 
-def _from_dataclass(cls, section, *, run_info, api):
+def _from_dataclass(cls, section, *, run_info, api, bounds=None, prefix="", help_prefix=""):
     docs = _doc_entries(cls)
+    bounds = bounds or {}
     out = []
     for f in dataclasses.fields(cls):
         typ, desc = docs.get(f.name, ("", ""))
@@ -413,12 +445,21 @@ def _from_dataclass(cls, section, *, run_info, api):
         if kind == "path" and hlp.startswith("None"):
             hlp = "a file to read; none: " + hlp.split(":", 1)[-1].strip()
         out.append(Setting(
-            section, f.name, kind, default, hlp,
+            section, prefix + f.name, kind, default, help_prefix + hlp,
             unit=_unit_of(f.name), choices=choices, optional="None" in str(f.type),
             run_info=run_info, api=api, metavar=metavar,
             aliases=_COST_ALIASES.get(f.name, ()) if section == "costs" else (),
-            **_DERIVED_BOUNDS.get(section, {}) if kind == "number" else {}))
+            **_bounds_of(section, f.name, kind, bounds)))
     return out
+
+
+def _bounds_of(section, name, kind, bounds):
+    if kind not in ("number", "integer"):
+        return {}
+    if name in bounds:
+        lo, hi, lo_open, hi_open = bounds[name]
+        return dict(lo=lo, hi=hi, lo_open=lo_open, hi_open=hi_open)
+    return _DERIVED_BOUNDS.get(section, {}) if kind == "number" else {}
 
 
 @functools.lru_cache(maxsize=1)
@@ -427,15 +468,25 @@ def _all():
     from ..hydraulics import DesignSettings
 
     static = list(STATIC_SETTINGS)
-    design = _from_dataclass(DesignSettings, "design", run_info="design_settings", api="design")
+    from ..hydraulics.design_settings import DESIGN_BOUNDS
+
+    design = _from_dataclass(DesignSettings, "design", run_info="design_settings", api="design",
+                             bounds=DESIGN_BOUNDS)
     have = {s.name for s in static}
     design = [s for s in design if s.name not in have]
     costs = _from_dataclass(CostWeights, "costs", run_info="weights", api="weights")
+    from ..graph.wholecost import WholeCostSettings
+
+    whole = _from_dataclass(WholeCostSettings, "tree", run_info="whole_cost_settings",
+                            api="whole_cost", bounds=_WHOLE_COST_BOUNDS, prefix=WHOLE_COST_PREFIX,
+                            help_prefix="whole-cost layout: ")
     out = []
     for sec in SECTIONS:
         out += [s for s in static if s.section == sec]
         if sec == "costs":
             out += costs
+        if sec == "tree":
+            out += whole
         if sec == "design":
             out += design
     return tuple(out)
@@ -496,13 +547,15 @@ def format_default(s: Setting) -> str:
 
 # ------------------------------------------------------------------ help
 def design_help(width=96) -> str:
-    """Every design key with its unit and default, for ``mainspan plan --help``."""
-    lines = ["design settings (--KEY VALUE or --design KEY=VALUE; unit, default):"]
+    """Every design key with its unit, default and range, for ``mainspan plan --help``."""
+    lines = ["design settings (--KEY VALUE or --design KEY=VALUE; unit, default, range):"]
     for s in all_settings("design"):
         unit = s.unit or "-"
         line = f"  {s.key:<28} [{unit}] default {format_default(s)}"
         if s.choices:
             line += f"; one of {', '.join(s.choices)}"
+        if s.bounds():
+            line += f"; {s.bounds()}"
         lines.append(line)
         lines.append(f"      {s.help}")
     return "\n".join(lines)
