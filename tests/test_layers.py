@@ -38,10 +38,10 @@ LAYERS = (
 #: importing the lower module never loads the higher one), with the reason.
 ALLOWED_UP = {
     # the schema derives its declarations from the stage dataclasses (CostWeights,
-    # DesignSettings, WholeCostSettings) and runs their checks, and the builder
+    # DesignSettings, WholeCostSettings in graph.tradeoff) and runs their checks, and the builder
     # registry's, at the boundary, before any work
     "mainspan.settings": ("mainspan.ground.costs", "mainspan.hydraulics",
-                          "mainspan.graph.wholecost", "mainspan.graph.candidates"),
+                          "mainspan.graph.tradeoff", "mainspan.graph.candidates"),
     # Layout.write_gpkg / read_layout hand the result to the GeoPackage writer
     "mainspan.pipeline.result": ("mainspan.writers.gpkg",),
     # the price table writes its CSV template with the table writer's safe CSV

@@ -16,7 +16,7 @@ import numpy as np
 from ..errors import InputError
 
 if TYPE_CHECKING:
-    from .costs import CostContext
+    from .cost_data import CostContext
 
 __all__ = ["terrain_term", "land_term", "length_term"]
 

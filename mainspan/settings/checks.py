@@ -283,7 +283,7 @@ def _build_objects(d, where):
     whole = [k for k, v in d.get("tree", {}).items()
              if k.startswith(WHOLE_COST_PREFIX) and v is not None]
     if whole:
-        from ..graph.wholecost import WholeCostSettings
+        from ..graph.tradeoff import WholeCostSettings
 
         n = len(WHOLE_COST_PREFIX)
         try:

@@ -54,7 +54,7 @@ def run_info_params(kw: dict, *, candidates_label=None) -> dict:
 
 
 def _whole_cost(v):
-    from ..graph.wholecost import WholeCostSettings
+    from ..graph.tradeoff import WholeCostSettings
 
     if isinstance(v, WholeCostSettings):
         return v

@@ -475,7 +475,7 @@ def _all():
     have = {s.name for s in static}
     design = [s for s in design if s.name not in have]
     costs = _from_dataclass(CostWeights, "costs", run_info="weights", api="weights")
-    from ..graph.wholecost import WholeCostSettings
+    from ..graph.tradeoff import WholeCostSettings
 
     whole = _from_dataclass(WholeCostSettings, "tree", run_info="whole_cost_settings",
                             api="whole_cost", bounds=_WHOLE_COST_BOUNDS, prefix=WHOLE_COST_PREFIX,
