@@ -355,7 +355,7 @@ def test_split_delaunay_only_when_two_cores_are_idle(monkeypatch):
 
 @pytest.mark.parametrize("case", ["uniform", "clustered", "grid", "grid_jittered"])
 def test_split_delaunay_equals_single_run(case, monkeypatch):
-    from mainspan.graph import triangulation
+    from mainspan.graph import candidates, triangulation
     from mainspan.graph.candidates import _qhull_split, delaunay_links
 
     rng = np.random.default_rng(13)
